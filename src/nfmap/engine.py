@@ -1,0 +1,586 @@
+"""NEC-2 method of moments through PyNEC: solve a model, near E and H at arbitrary points.
+
+Conventions
+-----------
+NEC excites with **peak** voltages and returns **peak** field phasors (time dependence
+exp(+j omega t)). Everything this module returns is converted once, here, to **rms** complex
+vectors in SI units (V/m, A/m), scaled to a requested accepted (input) power:
+E_rms = E_peak(1 V) * sqrt(P / P_in(1 V)) / sqrt(2), with P_in = 0.5 Re(V I*).
+
+H over a finite ground
+----------------------
+NEC-2's near-H routine (NH card) uses the reflection-coefficient approximation for the ground
+term even when the E field (NE card) uses the Sommerfeld-Norton method; low down it under-reads.
+Over a finite ground this module therefore derives H from the Sommerfeld E field by Faraday's
+law, H = j curl(E) / (omega mu0), with second-order central differences over six E lattices
+shifted by +-d/2 along x, y and z (d = 2 cm by default); E itself is then the mean of the six
+(second order too). In free space and over perfect ground NEC's NH is exact for the model and
+is used.
+
+References
+----------
+[1] G. J. Burke, A. J. Poggio, "Numerical Electromagnetics Code (NEC) - Method of Moments",
+    Part III: User's Guide, Lawrence Livermore National Laboratory, 1981 (card formats).
+[2] Rec. ITU-R P.527-3, "Electrical characteristics of the surface of the Earth", 1992, Fig. 1.
+"""
+
+from __future__ import annotations
+
+import functools
+import math
+import os
+from collections.abc import Callable, Sequence
+from concurrent.futures import ProcessPoolExecutor
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+from scipy import constants
+
+from antennas import C0_M_PER_S, Structure, segment_at
+
+MU0_H_PER_M = constants.mu_0
+CURL_STEP_M = 0.02
+CHUNK_POINTS = 2000
+LATTICE_CHUNK_POINTS = 8000
+PASSIVE_LOAD_OHM = 50.0
+
+# Ground classes: relative permittivity, conductivity [S/m].
+# sea .. very-dry: Rec. ITU-R P.527-3 (1992), Fig. 1, values of the curves at HF (read off the
+# curves; from memory, the document's figure was not available here).
+# average and city: common practice in NEC modelling (average 13 / 0.005; city / industrial 5 / 0.001).
+GROUND_CLASSES: dict[str, tuple[float, float]] = {
+    "sea": (70.0, 5.0),
+    "fresh-water": (80.0, 3.0e-3),
+    "wet": (30.0, 1.0e-2),
+    "average": (13.0, 5.0e-3),
+    "dry": (15.0, 1.0e-3),
+    "very-dry": (3.0, 1.0e-4),
+    "city": (5.0, 1.0e-3),
+}
+GROUND_KINDS = ("free-space", "perfect", *GROUND_CLASSES)
+
+
+class EngineError(RuntimeError):
+    """The NEC engine failed; ``stage`` is geometry, ground, solve or near field."""
+
+    def __init__(self, stage: str, structure: str, detail: str):
+        self.stage, self.structure, self.detail = stage, structure, detail
+        super().__init__(f"NEC engine failed at the {stage} stage for {structure!r}: {detail}")
+
+
+class EngineUnsoundError(EngineError):
+    """The installed PyNEC fails the low-wire regression check."""
+
+
+@dataclass(frozen=True)
+class Ground:
+    """Ground under the whole site: ``kind`` is free-space, perfect, a named class or 'custom'."""
+
+    kind: str
+    permittivity: float | None = None
+    conductivity_s_per_m: float | None = None
+
+    @property
+    def finite(self) -> bool:
+        return self.kind not in ("free-space", "perfect")
+
+    @property
+    def over_ground(self) -> bool:
+        return self.kind != "free-space"
+
+    def describe(self) -> str:
+        if not self.finite:
+            return self.kind
+        return (
+            f"{self.kind} (relative permittivity {self.permittivity:g}, "
+            f"conductivity {self.conductivity_s_per_m:g} S/m, Sommerfeld-Norton)"
+        )
+
+
+def ground(kind: str = "average", permittivity: float | None = None, conductivity_s_per_m: float | None = None) -> Ground:
+    """A :class:`Ground` from a class name, or explicit values (``kind='custom'``).
+
+    Raises ``ValueError`` for an unknown class or values out of range.
+    """
+    if permittivity is not None or conductivity_s_per_m is not None:
+        if permittivity is None or conductivity_s_per_m is None:
+            raise ValueError("give both permittivity and conductivity_s_per_m")
+        if not permittivity >= 1:
+            raise ValueError(f"permittivity must be >= 1, got {permittivity}")
+        if not conductivity_s_per_m >= 0:
+            raise ValueError(f"conductivity_s_per_m must be >= 0, got {conductivity_s_per_m}")
+        return Ground("custom", float(permittivity), float(conductivity_s_per_m))
+    if kind in ("free-space", "perfect"):
+        return Ground(kind)
+    if kind not in GROUND_CLASSES:
+        raise ValueError(f"unknown ground kind {kind!r}; valid: {', '.join(GROUND_KINDS)}")
+    eps, sig = GROUND_CLASSES[kind]
+    return Ground(kind, eps, sig)
+
+
+@dataclass(frozen=True)
+class Model:
+    """One NEC run: the structures of the site, which one is fed, the frequency and the ground.
+
+    The structures must be segmented (``antennas.segment``). Every structure but ``active`` is
+    passive, with ``passive_load_ohm`` across its feed (a nearby antenna re-radiates).
+    """
+
+    structures: tuple[Structure, ...]
+    active: int
+    frequency_mhz: float
+    ground: Ground
+    passive_load_ohm: float = PASSIVE_LOAD_OHM
+
+    @property
+    def name(self) -> str:
+        return self.structures[self.active].name
+
+    @property
+    def wavelength_m(self) -> float:
+        return C0_M_PER_S / (self.frequency_mhz * 1e6)
+
+
+@dataclass(frozen=True)
+class Solution:
+    """Feed-point figures of a solved model at 1 V peak excitation."""
+
+    feed_impedance_ohm: complex
+    feed_current_a: complex
+    input_power_w: float  # 0.5 Re(V I*) at 1 V peak
+
+
+@dataclass(frozen=True)
+class Lattice:
+    """A regular lattice; points ordered x fastest, then y, then z (as NEC's grid cards)."""
+
+    origin_m: tuple[float, float, float]
+    step_m: tuple[float, float, float]
+    shape: tuple[int, int, int]  # (nx, ny, nz)
+
+    def axes(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        return tuple(o + s * np.arange(n) for o, s, n in zip(self.origin_m, self.step_m, self.shape, strict=True))
+
+    def points(self) -> np.ndarray:
+        x, y, z = self.axes()
+        zz, yy, xx = np.meshgrid(z, y, x, indexing="ij")
+        return np.column_stack([xx.ravel(), yy.ravel(), zz.ravel()])
+
+    @property
+    def size(self) -> int:
+        return int(np.prod(self.shape))
+
+    def split_y(self, parts: int) -> list[Lattice]:
+        ny = self.shape[1]
+        edges = np.linspace(0, ny, min(parts, ny) + 1).round().astype(int)
+        out = []
+        for a, b in zip(edges[:-1], edges[1:], strict=True):
+            if b > a:
+                o = (self.origin_m[0], self.origin_m[1] + a * self.step_m[1], self.origin_m[2])
+                out.append(Lattice(o, self.step_m, (self.shape[0], int(b - a), self.shape[2])))
+        return out
+
+    def shifted(self, offset_m: Sequence[float]) -> Lattice:
+        return replace(self, origin_m=tuple(o + d for o, d in zip(self.origin_m, offset_m, strict=True)))
+
+
+@dataclass(frozen=True)
+class NearField:
+    """Near fields at points, rms complex vectors at the requested accepted power.
+
+    ``e_v_per_m`` and ``h_a_per_m`` have shape (N, 3); masked points hold NaN.
+    """
+
+    points_m: np.ndarray
+    e_v_per_m: np.ndarray
+    h_a_per_m: np.ndarray
+    masked: np.ndarray
+    h_method: str
+    solution: Solution
+    power_w: float
+    notes: tuple[str, ...] = field(default=())
+
+    @property
+    def masked_count(self) -> int:
+        return int(self.masked.sum())
+
+
+def _pynec():
+    import PyNEC  # imported late so worker processes can set thread counts first
+
+    return PyNEC
+
+
+def _tags(model: Model) -> list[list[int]]:
+    """NEC tag number of every wire, by structure (1-based, consecutive)."""
+    tags, t = [], 1
+    for s in model.structures:
+        tags.append(list(range(t, t + len(s.wires))))
+        t += len(s.wires)
+    return tags
+
+
+def _build(model: Model):
+    """A solved PyNEC context for ``model`` (excitation 1 V peak)."""
+    nec = _pynec()
+    name = model.name
+    if model.ground.finite:
+        _require_sound_engine(model)
+    try:
+        ctx = nec.nec_context()
+        geo = ctx.get_geometry()
+        tags = _tags(model)
+        for s, stags in zip(model.structures, tags, strict=True):
+            for w, tag in zip(s.wires, stags, strict=True):
+                geo.wire(tag, w.segments, *map(float, w.start_m), *map(float, w.end_m), w.radius_m, 1.0, 1.0)
+        ctx.geometry_complete(1 if model.ground.over_ground else 0)
+    except RuntimeError as err:
+        raise EngineError("geometry", name, str(err) or "geometry rejected") from err
+    try:
+        if model.ground.finite:
+            ctx.gn_card(2, 0, model.ground.permittivity, model.ground.conductivity_s_per_m, 0, 0, 0, 0)
+        elif model.ground.kind == "perfect":
+            ctx.gn_card(1, 0, 0, 0, 0, 0, 0, 0)
+        else:
+            ctx.gn_card(-1, 0, 0, 0, 0, 0, 0, 0)
+        ctx.fr_card(0, 1, float(model.frequency_mhz), 0.0)
+        for k, (s, stags) in enumerate(zip(model.structures, tags, strict=True)):
+            for ld in s.loads:
+                seg = segment_at(s.wires[ld.wire].segments, ld.at)
+                ctx.ld_card(4, stags[ld.wire], seg, seg, ld.resistance_ohm, ld.reactance_ohm, 0.0)
+            if k != model.active:
+                seg = s.feed_segment()
+                ctx.ld_card(4, stags[s.feed_wire], seg, seg, model.passive_load_ohm, 0.0, 0.0)
+    except RuntimeError as err:
+        raise EngineError("ground", name, str(err) or "ground or load rejected") from err
+    active = model.structures[model.active]
+    try:
+        ctx.ex_card(0, tags[model.active][active.feed_wire], active.feed_segment(), 0, 1.0, 0, 0, 0, 0, 0)
+        ctx.xq_card(0)
+        ip = ctx.get_input_parameters(0)
+        z = complex(ip.get_impedance()[0])
+        i = complex(ip.get_current()[0])
+    except (RuntimeError, AttributeError, IndexError) as err:
+        raise EngineError("solve", name, str(err) or "no solution") from err
+    p_in = 0.5 * (1.0 * i.conjugate()).real
+    if not (np.isfinite(z.real) and np.isfinite(z.imag)) or not p_in > 0:
+        raise EngineError("solve", name, f"non-physical feed: Z = {z}, P_in = {p_in} W at 1 V")
+    return ctx, Solution(z, i, p_in)
+
+
+def solve(model: Model) -> Solution:
+    """Solve ``model`` and return its feed figures at 1 V peak."""
+    return _build(model)[1]
+
+
+class _Counter:
+    """Wraps a PyNEC context to count near-field cards (PyNEC indexes patterns by card)."""
+
+    def __init__(self, ctx):
+        self.ctx, self.n = ctx, 0
+
+    def card(self, kind: str, args: tuple) -> object:
+        (self.ctx.ne_card if kind == "e" else self.ctx.nh_card)(*args)
+        self.n += 1
+        return self.ctx.get_near_field_pattern(self.n - 1)
+
+
+def _grid(counter: _Counter, lattice: Lattice, kind: str, name: str) -> np.ndarray:
+    (x0, y0, z0), (dx, dy, dz), (nx, ny, nz) = lattice.origin_m, lattice.step_m, lattice.shape
+    try:
+        nf = counter.card(kind, (0, nx, ny, nz, float(x0), float(y0), float(z0), float(dx), float(dy), float(dz)))
+        out = np.column_stack([np.asarray(nf.get_field_x()), np.asarray(nf.get_field_y()), np.asarray(nf.get_field_z())])
+    except (RuntimeError, AttributeError) as err:
+        raise EngineError("near field", name, str(err) or "near-field card failed") from err
+    if out.shape != (lattice.size, 3):
+        raise EngineError("near field", name, f"expected {lattice.size} points, got {out.shape[0]}")
+    return out
+
+
+def _points(counter: _Counter, pts: np.ndarray, kind: str, name: str) -> np.ndarray:
+    out = np.empty((len(pts), 3), complex)
+    try:
+        for k, (x, y, z) in enumerate(pts):
+            nf = counter.card(kind, (0, 1, 1, 1, float(x), float(y), float(z), 0.0, 0.0, 0.0))
+            out[k] = (nf.get_field_x()[0], nf.get_field_y()[0], nf.get_field_z()[0])
+    except (RuntimeError, AttributeError, IndexError) as err:
+        raise EngineError("near field", name, str(err) or "near-field card failed") from err
+    return out
+
+
+_AXES = np.eye(3)
+
+
+def _fields_peak(counter: _Counter, where, model: Model, h_method: str, step_m: float):
+    """Peak E and H (N, 3) at a lattice or a point array, by ``h_method``."""
+    name = model.name
+    if isinstance(where, Lattice):
+        def evaluate(kind, offset):
+            return _grid(counter, where.shifted(offset), kind, name)
+    else:
+        def evaluate(kind, offset):
+            return _points(counter, where + offset, kind, name)
+    if h_method == "nh":
+        return evaluate("e", (0.0, 0.0, 0.0)), evaluate("h", (0.0, 0.0, 0.0))
+    half = step_m / 2.0
+    plus = [evaluate("e", half * _AXES[a]) for a in range(3)]
+    minus = [evaluate("e", -half * _AXES[a]) for a in range(3)]
+    e = sum(plus + minus) / 6.0
+    d = [(plus[a] - minus[a]) / step_m for a in range(3)]  # d[a][:, c] = dE_c / dx_a
+    curl = np.column_stack([d[1][:, 2] - d[2][:, 1], d[2][:, 0] - d[0][:, 2], d[0][:, 1] - d[1][:, 0]])
+    omega = 2 * math.pi * model.frequency_mhz * 1e6
+    return e, 1j * curl / (omega * MU0_H_PER_M)
+
+
+def exclusion_m(model: Model) -> list[tuple[np.ndarray, np.ndarray, float]]:
+    """(start, end, exclusion radius) of every wire: max(10 radii, half a segment) [m]."""
+    out = []
+    for s in model.structures:
+        for w in s.wires:
+            r = max(10.0 * w.radius_m, 0.5 * w.length_m / w.segments)
+            out.append((np.asarray(w.start_m, float), np.asarray(w.end_m, float), r))
+    return out
+
+
+def mask_points(model: Model, points_m: np.ndarray) -> np.ndarray:
+    """True where a point is below ground or inside a wire's exclusion distance."""
+    pts = np.asarray(points_m, float)
+    masked = np.zeros(len(pts), bool)
+    if model.ground.over_ground:
+        masked |= pts[:, 2] < 0.0
+    for a, b, r in exclusion_m(model):
+        ab = b - a
+        t = np.clip(((pts - a) @ ab) / (ab @ ab), 0.0, 1.0)
+        dist = np.linalg.norm(pts - (a + t[:, None] * ab), axis=1)
+        masked |= dist < r
+    return masked
+
+
+def default_h_method(ground_: Ground) -> str:
+    return "curl" if ground_.finite else "nh"
+
+
+def _worker_init() -> None:
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        os.environ[var] = "1"
+
+
+def _task(model: Model, where, h_method: str, step_m: float):
+    ctx, sol = _build(model)
+    counter = _Counter(ctx)
+    e, h = _fields_peak(counter, where, model, h_method, step_m)
+    return e, h, sol
+
+
+def near_fields(
+    model: Model,
+    where: Lattice | np.ndarray,
+    power_w: float,
+    jobs: int = 1,
+    h_method: str | None = None,
+    step_m: float = CURL_STEP_M,
+    progress: Callable[[int], None] | None = None,
+) -> NearField:
+    """Near E and H of ``model`` at a lattice or at points, rms at accepted power ``power_w``.
+
+    Parameters
+    ----------
+    where : Lattice or array (N, 3) [m]
+    power_w : float
+        Accepted (input) power at the feed [W].
+    jobs : int
+        Worker processes; each builds and solves its own context. Results do not depend on it.
+    h_method : {"nh", "curl"}
+        H from NEC's NH card or from curl E; default "curl" over a finite ground, else "nh".
+    progress : callable
+        Called with the number of points finished after each chunk.
+
+    Returns
+    -------
+    NearField
+        rms complex E [V/m] and H [A/m], NaN where masked.
+    """
+    if not power_w > 0 or not math.isfinite(power_w):
+        raise ValueError(f"power_w must be > 0, got {power_w}")
+    h_method = h_method or default_h_method(model.ground)
+    if h_method not in ("nh", "curl"):
+        raise ValueError(f"h_method must be 'nh' or 'curl', got {h_method!r}")
+    if isinstance(where, Lattice):
+        pts = where.points()
+        chunks = where.split_y(math.ceil(where.size / LATTICE_CHUNK_POINTS))  # never depends on jobs
+    else:
+        pts = np.asarray(where, float).reshape(-1, 3)
+        chunks = None
+    masked = mask_points(model, pts)
+    if chunks is None:
+        keep = np.flatnonzero(~masked)
+        chunks = [pts[keep[i : i + CHUNK_POINTS]] for i in range(0, len(keep), CHUNK_POINTS)]
+    e_pk = np.full((len(pts), 3), np.nan, complex)
+    h_pk = np.full((len(pts), 3), np.nan, complex)
+    results = []
+    if not chunks:
+        sol = solve(model)
+    elif jobs <= 1 or len(chunks) == 1:
+        for c in chunks:
+            results.append(_task(model, c, h_method, step_m))
+            if progress:
+                progress(c.size if isinstance(c, Lattice) else len(c))
+    else:
+        import multiprocessing
+
+        with ProcessPoolExecutor(jobs, mp_context=multiprocessing.get_context("spawn"), initializer=_worker_init) as pool:
+            futures = [pool.submit(_task, model, c, h_method, step_m) for c in chunks]
+            for c, f in zip(chunks, futures, strict=True):
+                results.append(f.result())
+                if progress:
+                    progress(c.size if isinstance(c, Lattice) else len(c))
+    if results:
+        sol = results[0][2]
+        e_all = np.concatenate([r[0] for r in results])
+        h_all = np.concatenate([r[1] for r in results])
+        if isinstance(where, Lattice):
+            # chunks split along y: reassemble in x-fastest, y, z order
+            nx, _, nz = where.shape
+            e_pk = _merge_y(e_all, chunks, nx, nz)
+            h_pk = _merge_y(h_all, chunks, nx, nz)
+        else:
+            e_pk[keep] = e_all
+            h_pk[keep] = h_all
+    scale = math.sqrt(power_w / sol.input_power_w) / math.sqrt(2.0)
+    e, h = e_pk * scale, h_pk * scale
+    e[masked] = np.nan
+    h[masked] = np.nan
+    finite = np.isfinite(e).all(axis=1) & np.isfinite(h).all(axis=1)
+    if np.any(~finite & ~masked):
+        raise EngineError("near field", model.name, f"{int((~finite & ~masked).sum())} points gave NaN or inf")
+    return NearField(pts, e, h, masked, h_method, sol, float(power_w))
+
+
+def _merge_y(values: np.ndarray, chunks: list[Lattice], nx: int, nz: int) -> np.ndarray:
+    blocks, i = [], 0
+    for c in chunks:
+        n = c.size
+        blocks.append(values[i : i + n].reshape(nz, c.shape[1], nx, 3))
+        i += n
+    return np.concatenate(blocks, axis=1).reshape(-1, 3)
+
+
+def rms_magnitude(v: np.ndarray) -> np.ndarray:
+    """|v| of complex vectors (N, 3) (already rms phasors): sqrt(sum |v_i|^2)."""
+    return np.sqrt(np.sum(np.abs(v) ** 2, axis=-1))
+
+
+# -- the low-wire regression check ------------------------------------------------------------
+
+# A 10.6 m dipole, 21 segments, 1 mm radius, 0.43 m high, 14 MHz, ground eps_r 10, sigma
+# 0.002 S/m. Debian's nec2c 1.3 gives 100.03 + j65.95 ohm for this deck; PyPI's pynec 2.3.4 gives
+# 428 - j308 ohm (it mishandles wires lower than about 0.04 lambda over a finite ground).
+LOW_WIRE_REFERENCE_OHM = complex(100.03, 65.95)
+
+
+@functools.cache
+def low_wire_check() -> complex:
+    """Feed impedance the installed PyNEC gives for the low-wire regression deck [ohm]."""
+    from antennas import Wire
+
+    s = Structure("low-wire check", (Wire((-5.3, 0.0, 0.43), (5.3, 0.0, 0.43), 0.002, 21),), 0, 0.5)
+    m = Model((s,), 0, 14.0, Ground("custom", 10.0, 0.002))
+    return _build_unchecked(m)
+
+
+def _build_unchecked(model: Model) -> complex:
+    nec = _pynec()
+    ctx = nec.nec_context()
+    geo = ctx.get_geometry()
+    w = model.structures[0].wires[0]
+    geo.wire(1, w.segments, *w.start_m, *w.end_m, w.radius_m, 1.0, 1.0)
+    ctx.geometry_complete(1)
+    ctx.gn_card(2, 0, model.ground.permittivity, model.ground.conductivity_s_per_m, 0, 0, 0, 0)
+    ctx.fr_card(0, 1, model.frequency_mhz, 0.0)
+    ctx.ex_card(0, 1, model.structures[0].feed_segment(), 0, 1.0, 0, 0, 0, 0, 0)
+    ctx.xq_card(0)
+    return complex(ctx.get_input_parameters(0).get_impedance()[0])
+
+
+def engine_is_sound() -> bool:
+    """True when the installed PyNEC passes the low-wire check within 1 %."""
+    z = low_wire_check()
+    return abs(z - LOW_WIRE_REFERENCE_OHM) <= 0.01 * abs(LOW_WIRE_REFERENCE_OHM)
+
+
+def _require_sound_engine(model: Model) -> None:
+    lowest_m = min(min(w.start_m[2], w.end_m[2]) for s in model.structures for w in s.wires)
+    if lowest_m < 0.04 * model.wavelength_m and not engine_is_sound():
+        raise EngineUnsoundError(
+            "solve",
+            model.name,
+            f"the installed PyNEC gives {low_wire_check():.2f} ohm for the low-wire check deck "
+            f"(reference {LOW_WIRE_REFERENCE_OHM} ohm from nec2c); it is wrong for wires below "
+            "0.04 wavelength over a finite ground. Install pynec-accel (pip install pynec-accel).",
+        )
+
+
+# -- average gain test ------------------------------------------------------------------------
+
+
+def average_gain(structure: Structure, frequency_mhz: float, step_deg: float = 5.0) -> float:
+    """Average Gain Test: radiated power over the sphere / input power, free space, lossless.
+
+    Power gain is integrated over the whole sphere at ``step_deg`` by NEC's own averaging
+    (RP card with XNDA averaging flag). A sound model gives 1 within about 0.2 dB
+    (common practice).
+    """
+    s = replace(structure, loads=())
+    model = Model((s,), 0, frequency_mhz, Ground("free-space"))
+    ctx, _ = _build(model)
+    n_theta = int(round(180 / step_deg)) + 1
+    n_phi = int(round(360 / step_deg)) + 1
+    try:
+        ctx.rp_card(0, n_theta, n_phi, 0, 0, 0, 1, 0.0, 0.0, step_deg, step_deg, 0.0, 0.0)
+        return float(ctx.get_radiation_pattern(0).get_average_power_gain())
+    except (RuntimeError, AttributeError) as err:
+        raise EngineError("solve", structure.name, str(err) or "radiation pattern failed") from err
+
+
+# -- deck export ------------------------------------------------------------------------------
+
+
+def nec_deck(model: Model, where: Lattice | None = None, comments: Sequence[str] = (), with_h: bool = True) -> str:
+    """The NEC-2 card deck of a solve (CM/CE, GW, GE, GN, LD, EX, FR, NE, NH, EN).
+
+    Runs in any NEC-2 engine (column-free format, as nec2c reads it). Excitation is 1 V peak;
+    near fields are peak values at that excitation.
+    """
+    lines = [f"CM {c}" for c in comments] or ["CM nfmap deck"]
+    lines.append(f"CM {model.name} at {model.frequency_mhz:g} MHz, ground {model.ground.describe()}")
+    lines.append("CE")
+    tags = _tags(model)
+    for s, stags in zip(model.structures, tags, strict=True):
+        for w, tag in zip(s.wires, stags, strict=True):
+            coords = " ".join(f"{v:.6g}" for v in (*w.start_m, *w.end_m))
+            lines.append(f"GW {tag} {w.segments} {coords} {w.radius_m:.6g}")
+    lines.append(f"GE {1 if model.ground.over_ground else 0}")
+    if model.ground.finite:
+        lines.append(f"GN 2 0 0 0 {model.ground.permittivity:.6g} {model.ground.conductivity_s_per_m:.6g}")
+    elif model.ground.kind == "perfect":
+        lines.append("GN 1")
+    for k, (s, stags) in enumerate(zip(model.structures, tags, strict=True)):
+        for ld in s.loads:
+            seg = segment_at(s.wires[ld.wire].segments, ld.at)
+            lines.append(f"LD 4 {stags[ld.wire]} {seg} {seg} {ld.resistance_ohm:.6g} {ld.reactance_ohm:.6g}")
+        if k != model.active:
+            seg = s.feed_segment()
+            lines.append(f"LD 4 {stags[s.feed_wire]} {seg} {seg} {model.passive_load_ohm:.6g} 0")
+    lines.append(f"FR 0 1 0 0 {model.frequency_mhz:.9g} 0")
+    active = model.structures[model.active]
+    lines.append(f"EX 0 {tags[model.active][active.feed_wire]} {active.feed_segment()} 0 1 0")
+    if where is not None:
+        (x0, y0, z0), (dx, dy, dz), (nx, ny, nz) = where.origin_m, where.step_m, where.shape
+        grid = f"0 {nx} {ny} {nz} {x0:.6g} {y0:.6g} {z0:.6g} {dx:.6g} {dy:.6g} {dz:.6g}"
+        lines.append(f"NE {grid}")
+        if with_h:
+            lines.append(f"NH {grid}")
+    else:
+        lines.append("XQ")
+    lines.append("EN")
+    return "\n".join(lines) + "\n"
