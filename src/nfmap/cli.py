@@ -186,3 +186,282 @@ def reading_cmd(dbm, antenna_factor_db, magnetic_factor_db, cable_loss_db, probe
     return None
 
 
+
+
+# -- the site commands ------------------------------------------------------------------------
+
+
+def _load(path: str):
+    from .site import SiteError, load
+
+    try:
+        return load(path)
+    except SiteError as err:
+        for p in err.problems[:-1]:
+            click.echo(f"nfmap: error: {p}", err=True)
+        raise InputError(err.problems[-1]) from None
+
+
+def _engine_errors(fn):
+    """Run ``fn``, turning engine failures into exit 3 and geometry errors into exit 2."""
+    from antennas import GeometryError
+
+    from .engine import EngineError
+
+    try:
+        return fn()
+    except EngineError as err:
+        raise SolveError(str(err)) from None
+    except GeometryError as err:
+        raise InputError(str(err)) from None
+
+
+def _default_jobs(jobs: int | None) -> int:
+    import os
+
+    if jobs is not None and jobs < 1:
+        raise InputError(f"--jobs must be >= 1, got {jobs}")
+    return jobs or os.cpu_count() or 1
+
+
+@main.command("run")
+@click.argument("site_file", type=click.Path(dir_okay=False))
+@click.option("-o", "--output", "out_dir", type=click.Path(file_okay=False), help="output folder [nfmap-out/<stem>]")
+@click.option("--jobs", type=int, help="worker processes [all cores]")
+@click.option("--force", is_flag=True, help="replace an existing output folder")
+@click.option("--quiet", is_flag=True, help="no progress bar")
+def run_cmd(site_file, out_dir, jobs, force, quiet):
+    """The whole assessment: fields, ratios, area verdicts, maps, report, data."""
+    site = _load(site_file)
+    out = Path(out_dir) if out_dir else Path("nfmap-out") / Path(site_file).stem
+    if out.exists() and not force:
+        raise InputError(f"{out} exists; give --force to replace it (or -o another folder)")
+    return _run_site(site, out, _default_jobs(jobs), force, quiet)
+
+
+def _run_site(site, out: Path, jobs: int, force: bool, quiet: bool) -> int:
+    from . import assess
+    from .records import write_folder
+
+    total = _points_total(site)
+    show = not quiet and sys.stderr.isatty()
+    with click.progressbar(length=total, label="near fields", file=sys.stderr) if show else _Null() as bar:
+        a = _engine_errors(lambda: assess.assess(site, jobs=jobs, progress=bar.update))
+    write_folder(out, force, lambda folder: _write_all(a, folder))
+    _summary(a, out)
+    return EXIT_OVER if a.over else EXIT_OK
+
+
+class _Null:
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        return False
+
+    def update(self, n):
+        pass
+
+
+def _points_total(site) -> int:
+    from . import assess
+
+    pl = assess.plan(site)
+    lats = assess._lattices(site, pl)
+    return sum(lat.size for _, lat, _ in lats) * len(site.transmissions)
+
+
+def _write_all(a, folder: Path) -> None:
+    from . import records
+
+    records.write_data(a, folder)
+    try:
+        from . import report
+    except ImportError:  # pragma: no cover
+        return
+    report.write_maps_and_report(a, folder)
+
+
+def _summary(a, out: Path) -> None:
+    click.echo(f"{a.site.title}: {a.site.standard}, {len(a.transmissions)} transmissions, {a.points_evaluated} points")
+    for t in a.transmissions:
+        ceiling = "no limit within the lattice" if t.power_ceiling_w is None or math.isinf(t.power_ceiling_w) else f"{t.power_ceiling_w:.0f} W PEP"
+        click.echo(f"  {t.name} ({t.frequency_mhz:g} MHz, {t.average_power_w:.1f} W average): power ceiling {ceiling}")
+        for ar in t.areas:
+            if ar.exposure == "none" or ar.max_ratio is None:
+                continue
+            flag = "OVER" if ar.max_ratio >= 1 else ("not shown" if ar.masked_points else "ok")
+            masked = f", {ar.masked_points} points too close to a wire (not shown compliant)" if ar.masked_points else ""
+            click.echo(f"    {ar.name:<28} {flag:<9} worst {ar.max_ratio:.3g} of the limit ({ar.governing}){masked}")
+    click.echo(f"combined worst: {max((x.max_ratio or 0) for x in a.combined.areas if x.exposure != 'none'):.3g} of the limit")
+    click.echo(f"written to {out}/")
+    click.echo("A model is not a measurement; local regulations and a qualified assessment prevail.")
+
+
+@main.command("check")
+@click.argument("site_file", type=click.Path(dir_okay=False))
+@click.option("--plan", "plan_png", type=click.Path(dir_okay=False), help="draw the plan to this PNG")
+@click.option("--json", "as_json", is_flag=True)
+def check_cmd(site_file, plan_png, as_json):
+    """Validate the file and the NEC rules, run the average gain test; no field solve."""
+    import antennas
+
+    from . import assess, engine
+    from .site import SiteError, load
+
+    try:
+        site = load(site_file)
+    except SiteError as err:
+        if as_json:
+            _json({"ok": False, "errors": err.problems, "warnings": [], "antennas": []})
+            return EXIT_INPUT
+        for p in err.problems[:-1]:
+            click.echo(f"nfmap: error: {p}", err=True)
+        raise InputError(err.problems[-1]) from None
+    warns: list[str] = list(site.warnings)
+    ants = []
+    for t in site.transmissions:
+        assess.model_for(site, t.name, warns)
+    for spec in site.antennas:
+        s = assess._structure(site, spec.name, assess.highest_any(site))
+        f = max(tr.frequency_mhz for tr in site.transmissions if tr.antenna == spec.name) if any(
+            tr.antenna == spec.name for tr in site.transmissions) else assess.highest_any(site)
+        fs = antennas.segment(s, f) if site.ground.kind != "perfect" else s
+        agt, gain = _engine_errors(lambda fs=fs, f=f: engine.pattern_figures(_free(fs), f))
+        if abs(10 * math.log10(agt)) > 0.2:
+            warns.append(f"antenna {spec.name!r}: average gain test {agt:.3f} ({10 * math.log10(agt):+.2f} dB), beyond 0.2 dB")
+        ants.append({"name": spec.name, "kind": spec.kind, "wires": len(s.wires), "segments": s.segment_count,
+                     "agt": round(agt, 4), "agt_db": round(10 * math.log10(agt), 3), "max_gain_dbi": round(gain, 2)})
+    if plan_png:
+        from . import maps
+
+        maps.save_plan(site, plan_png)
+    if as_json:
+        _json({"ok": True, "errors": [], "warnings": warns, "antennas": ants})
+        return EXIT_OK
+    for w in warns:
+        click.echo(f"nfmap: warning: {w}", err=True)
+    click.echo(f"{site.path}: valid ({len(site.antennas)} antennas, {len(site.transmissions)} transmissions)")
+    for a in ants:
+        click.echo(f"  {a['name']}: {a['kind']}, {a['wires']} wires, {a['segments']} segments, "
+                   f"AGT {a['agt']:.3f} ({a['agt_db']:+.2f} dB), max gain {a['max_gain_dbi']:.2f} dBi (free space)")
+    if plan_png:
+        click.echo(f"plan drawn to {plan_png}")
+    return EXIT_OK
+
+
+def _free(structure):
+    """A structure as it stands, for the free-space average gain test (grounded verticals excluded)."""
+    from dataclasses import replace
+
+    return replace(structure, grounded=False)
+
+
+@main.command("probe")
+@click.argument("site_file", type=click.Path(dir_okay=False))
+@click.option("--at", "at", multiple=True, required=True, help="X,Y,Z in site metres; repeat")
+@click.option("--exposure", type=click.Choice(["public", "occupational"]), help="tier to judge against [the area's]")
+@click.option("--transmission", "only", multiple=True, help="only these transmissions")
+@click.option("--json", "as_json", is_flag=True)
+def probe_cmd(site_file, at, exposure, only, as_json):
+    """Fields and exposure ratio at given points, per transmission."""
+    import numpy as np
+
+    from . import assess, engine
+    from .exposure import limits, ratios
+
+    site = _load(site_file)
+    pts = []
+    for a in at:
+        try:
+            xyz = [float(v) for v in a.split(",")]
+            assert len(xyz) == 3 and all(math.isfinite(v) for v in xyz)
+        except (ValueError, AssertionError):
+            raise InputError(f"--at {a!r}: allowed: X,Y,Z in metres, e.g. --at 3,4,1.5") from None
+        pts.append(xyz)
+    pts = np.array(pts)
+    pl = assess.plan(site)
+    tiers = []
+    for x, y, _ in pts:
+        tier = "public"
+        best = 99
+        for ar in site.areas:
+            from shapely import Point
+
+            if ar.shape.covers(Point(x, y)) and assess.STRICTNESS[ar.exposure] < best:
+                tier, best = ar.exposure, assess.STRICTNESS[ar.exposure]
+        tiers.append(exposure or ("public" if tier == "none" else tier))
+    del pl
+    txs, rows = [], []
+    for t in site.transmissions:
+        if only and t.name not in only:
+            continue
+        model = assess.model_for(site, t.name)
+        nf = _engine_errors(lambda m=model, t=t: engine.near_fields(m, pts, t.average_power_w))
+        e = engine.rms_magnitude(nf.e_v_per_m)
+        h = engine.rms_magnitude(nf.h_a_per_m)
+        z = nf.solution.feed_impedance_ohm
+        txs.append({"name": t.name, "frequency_mhz": t.frequency_mhz, "feed_impedance_ohm": [z.real, z.imag],
+                    "input_power_w": t.average_power_w, "average_power_w": t.average_power_w})
+        for k, (x, y, zz) in enumerate(pts):
+            lim = limits.limits(site.standard, tiers[k], t.frequency_mhz)
+            r, _ = ratios.exposure_ratio(e[k : k + 1], h[k : k + 1], lim)
+            masked = bool(nf.masked[k])
+            rows.append({"x_m": x, "y_m": y, "z_m": zz, "transmission": t.name,
+                         "e_rms_v_per_m": None if masked else float(e[k]),
+                         "h_rms_a_per_m": None if masked else float(h[k]),
+                         "ratio": None if masked else float(r[0]), "exposure": tiers[k], "masked": masked})
+    if only and not txs:
+        raise InputError(f"--transmission: none of {', '.join(only)}; allowed: {', '.join(t.name for t in site.transmissions)}")
+    if as_json:
+        return _json({"transmissions": txs, "points": rows})
+    for r in rows:
+        where = f"({r['x_m']:g}, {r['y_m']:g}, {r['z_m']:g}) m"
+        if r["masked"]:
+            click.echo(f"{r['transmission']}: {where}: masked (below ground or too close to a wire)")
+        else:
+            click.echo(f"{r['transmission']}: {where}: E {r['e_rms_v_per_m']:.3g} V/m, H {r['h_rms_a_per_m']:.3g} A/m, "
+                       f"{r['ratio']:.3g} of the {r['exposure']} limit")
+    return EXIT_OK
+
+
+@main.command("deck")
+@click.argument("site_file", type=click.Path(dir_okay=False))
+@click.option("--transmission", "name", required=True, help="the transmission's name")
+def deck_cmd(site_file, name):
+    """Print the NEC-2 card deck of one transmission, for checking in any NEC engine."""
+    from . import assess, engine
+    from .site import SiteError
+
+    site = _load(site_file)
+    try:
+        t = site.transmission(name)
+    except SiteError as err:
+        raise InputError(err.problems[0]) from None
+    model = assess.model_for(site, t.name)
+    pl = assess.plan(site)
+    _, lat, _ = assess._lattices(site, pl)[0]
+    comments = [f"nfmap {__version__}: {site.title}", f"transmission {t.name!r}: excitation 1 V peak; "
+                f"scale fields by sqrt({t.average_power_w:.6g} W / P_in) for the average power"]
+    click.echo(engine.nec_deck(model, lat, comments), nl=False)
+    return EXIT_OK
+
+
+@main.command("demo")
+@click.option("-o", "--output", "out_dir", type=click.Path(file_okay=False), default="nfmap-demo", show_default=True)
+@click.option("--jobs", type=int)
+@click.option("--force", is_flag=True)
+@click.option("--quiet", is_flag=True)
+def demo_cmd(out_dir, jobs, force, quiet):
+    """Write the bundled example site into the output folder and run it."""
+    from importlib import resources
+
+    out = Path(out_dir)
+    if out.exists() and not force:
+        raise InputError(f"{out} exists; give --force to replace it (or -o another folder)")
+    out.mkdir(parents=True, exist_ok=True)
+    site_path = out / "demo.toml"
+    site_path.write_text(resources.files("nfmap").joinpath("examples/demo.toml").read_text())
+    click.echo(f"example site written to {site_path}")
+    site = _load(str(site_path))
+    return _run_site(site, out / "results", _default_jobs(jobs), True, quiet)

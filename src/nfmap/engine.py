@@ -523,12 +523,13 @@ def _require_sound_engine(model: Model) -> None:
 # -- average gain test ------------------------------------------------------------------------
 
 
-def average_gain(structure: Structure, frequency_mhz: float, step_deg: float = 5.0) -> float:
-    """Average Gain Test: radiated power over the sphere / input power, free space, lossless.
+@functools.cache
+def pattern_figures(structure: Structure, frequency_mhz: float, step_deg: float = 5.0) -> tuple[float, float]:
+    """(Average Gain Test, maximum gain [dBi]) of a structure alone in free space, lossless.
 
-    Power gain is integrated over the whole sphere at ``step_deg`` by NEC's own averaging
-    (RP card with XNDA averaging flag). A sound model gives 1 within about 0.2 dB
-    (common practice).
+    The AGT is the radiated power over the sphere / input power, from NEC's own averaging
+    (RP card with the XNDA averaging flag) at ``step_deg``. A sound model gives 1 within about
+    0.2 dB (common practice).
     """
     s = replace(structure, loads=())
     model = Model((s,), 0, frequency_mhz, Ground("free-space"))
@@ -537,9 +538,15 @@ def average_gain(structure: Structure, frequency_mhz: float, step_deg: float = 5
     n_phi = int(round(360 / step_deg)) + 1
     try:
         ctx.rp_card(0, n_theta, n_phi, 0, 0, 0, 1, 0.0, 0.0, step_deg, step_deg, 0.0, 0.0)
-        return float(ctx.get_radiation_pattern(0).get_average_power_gain())
+        rp = ctx.get_radiation_pattern(0)
+        return float(rp.get_average_power_gain()), float(np.max(rp.get_gain()))
     except (RuntimeError, AttributeError) as err:
         raise EngineError("solve", structure.name, str(err) or "radiation pattern failed") from err
+
+
+def average_gain(structure: Structure, frequency_mhz: float) -> float:
+    """Average Gain Test of a structure (see :func:`pattern_figures`)."""
+    return pattern_figures(structure, frequency_mhz)[0]
 
 
 # -- deck export ------------------------------------------------------------------------------

@@ -1,0 +1,212 @@
+"""Maps over the site plan (matplotlib; functions take ``ax=`` and return what they drew).
+
+Nothing here touches matplotlib's global settings. Exposure ratio is drawn as filled contours
+on the perceptually uniform, colour-blind-safe "cividis" scale at 0.1 ... 10 x the limit (log),
+the limit as a bold solid line with white casing, the 0.5 margin as a dashed line, so the two
+read apart in greyscale print.
+"""
+
+from __future__ import annotations
+
+import math
+import textwrap
+
+import numpy as np
+from matplotlib.colors import BoundaryNorm
+from matplotlib.figure import Figure
+from matplotlib.patches import FancyArrow, Polygon, Rectangle
+
+from . import __version__
+from .assess import MAP_LEVELS, Plan
+
+TIER_STYLE = {
+    "public": {"edgecolor": "#00796b", "linestyle": "-", "linewidth": 1.6, "hatch": None},
+    "occupational": {"edgecolor": "#00796b", "linestyle": (0, (6, 2, 1, 2)), "linewidth": 1.6, "hatch": None},
+    "none": {"edgecolor": "#555555", "linestyle": ":", "linewidth": 1.2, "hatch": "xx"},
+}
+WIRE_COLOUR = "#c2185b"
+
+
+def draw_plan(site, ax, antennas_wires=None, label_areas=True):
+    """Areas by tier, lines labelled, antennas as their wires projected on the plan."""
+    drawn = []
+    for a in site.areas:
+        st = TIER_STYLE[a.exposure]
+        p = Polygon(a.polygon, closed=True, fill=st["hatch"] is not None, facecolor="none", hatch=st["hatch"],
+                    edgecolor=st["edgecolor"], linestyle=st["linestyle"], linewidth=st["linewidth"], zorder=4)
+        ax.add_patch(p)
+        drawn.append(p)
+        if label_areas:
+            cx = np.mean([q[0] for q in a.polygon])
+            cy = max(q[1] for q in a.polygon)
+            floor = f" (floor {a.floor_m:g} m)" if a.floor_m else ""
+            ax.annotate(f"{a.name}{floor}", (cx, cy), xytext=(0, -9), textcoords="offset points", ha="center",
+                        fontsize=6.5, color="#1b3a4b", zorder=6,
+                        bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.7})
+    for ln in site.lines:
+        xy = np.array(ln.points)
+        (h,) = ax.plot(xy[:, 0], xy[:, 1], color="#6d4c41", linewidth=2.2, solid_capstyle="butt", zorder=5)
+        ax.plot(xy[:, 0], xy[:, 1], color="white", linewidth=0.6, linestyle=(0, (2, 2)), zorder=5)
+        mid = xy[len(xy) // 2 - 1 : len(xy) // 2 + 1].mean(axis=0) if len(xy) > 1 else xy[0]
+        ax.annotate(ln.name, mid, xytext=(3, 3), textcoords="offset points", fontsize=6.5, color="#6d4c41", zorder=6)
+        drawn.append(h)
+    for name, wires in (antennas_wires or {}).items():
+        for w in wires:
+            ax.plot([w.start_m[0], w.end_m[0]], [w.start_m[1], w.end_m[1]], color="white", linewidth=3.2, zorder=7)
+            ax.plot([w.start_m[0], w.end_m[0]], [w.start_m[1], w.end_m[1]], color=WIRE_COLOUR, linewidth=1.6, zorder=8)
+        xs = [c for w in wires for c in (w.start_m[0], w.end_m[0])]
+        ys = [c for w in wires for c in (w.start_m[1], w.end_m[1])]
+        ax.annotate(name, (max(xs), max(ys)), xytext=(3, 2), textcoords="offset points", fontsize=7,
+                    color=WIRE_COLOUR, weight="bold", zorder=9)
+    return drawn
+
+
+def draw_furniture(ax, north_deg: float, extent):
+    """North arrow (bearing of +y is ``north_deg``) and a scale bar, in the lower left."""
+    x0, x1, y0, y1 = extent
+    span = x1 - x0
+    bar = 10 ** math.floor(math.log10(span / 4))
+    bar *= 5 if span / 4 >= 5 * bar else (2 if span / 4 >= 2 * bar else 1)
+    bx, by = x0 + 0.04 * span, y0 + 0.04 * (y1 - y0)
+    ax.add_patch(Rectangle((bx, by), bar, 0.012 * (y1 - y0), facecolor="black", zorder=10))
+    ax.add_patch(Rectangle((bx + bar / 2, by), bar / 2, 0.012 * (y1 - y0), facecolor="white", edgecolor="black", zorder=10))
+    ax.text(bx + bar / 2, by + 0.02 * (y1 - y0), f"{bar:g} m", ha="center", fontsize=7, zorder=10)
+    # +y points to bearing north_deg, so north is turned by -north_deg from +y
+    ang = math.radians(-north_deg)
+    ax_x, ax_y = x1 - 0.06 * span, y0 + 0.08 * (y1 - y0)
+    length = 0.07 * (y1 - y0)
+    ax.add_patch(FancyArrow(ax_x, ax_y, length * math.sin(ang), length * math.cos(ang), width=0.012 * span,
+                            head_width=0.035 * span, head_length=0.03 * (y1 - y0), color="black", zorder=10))
+    ax.text(ax_x + 1.35 * length * math.sin(ang), ax_y + 1.35 * length * math.cos(ang), "N", ha="center",
+            va="center", fontsize=9, weight="bold", zorder=10)
+
+
+def draw_ratio(pl: Plan, ratio: np.ndarray, ax):
+    """Filled contours of the exposure ratio, the limit and 0.5 lines, and the masked zone."""
+    z = np.clip(np.where(np.isnan(ratio), np.nan, ratio), 1e-4, 1e4)
+    levels = [1e-4, *MAP_LEVELS, 1e4]
+    from matplotlib import colormaps
+    from matplotlib.colors import ListedColormap
+
+    # below 0.1 of the limit: paper white, so the plan stays readable; then cividis upwards
+    steps = colormaps["cividis"].resampled(len(levels) - 2)(np.arange(len(levels) - 2))
+    cmap = ListedColormap(np.vstack([[1.0, 1.0, 1.0, 1.0], steps]))
+    norm = BoundaryNorm(levels, cmap.N)
+    filled = ax.contourf(pl.x_m, pl.y_m, z, levels=levels, cmap=cmap, norm=norm, zorder=1)
+    half = ax.contour(pl.x_m, pl.y_m, z, levels=[0.5], colors="#777777", linewidths=1.0, linestyles="--", zorder=2)
+    ax.clabel(half, fmt={0.5: "0.5"}, fontsize=6.5, colors="#444444")
+    ax.contour(pl.x_m, pl.y_m, z, levels=[1.0], colors="white", linewidths=3.6, zorder=2)
+    lim = ax.contour(pl.x_m, pl.y_m, z, levels=[1.0], colors="black", linewidths=2.0, zorder=3)
+    ax.clabel(lim, fmt={1.0: "limit"}, fontsize=7, colors="black")
+    masked = np.isnan(ratio).astype(float)
+    hatch = None
+    if masked.any():
+        hatch = ax.contourf(pl.x_m, pl.y_m, masked, levels=[0.5, 1.5], colors="none", hatches=["////"], zorder=3)
+        hatch.set_edgecolor("#d9d9d9")
+    return filled, lim, half, hatch
+
+
+def draw_marks(ax, crossings, worst):
+    """Crossings numbered on their lines; the worst point of each public area with its value."""
+    for k, c in enumerate(crossings, 1):
+        ax.plot([c.from_m[0], c.to_m[0]], [c.from_m[1], c.to_m[1]], color="#ff6f00", linewidth=4.5, zorder=11,
+                solid_capstyle="butt")
+        mx, my = (c.from_m[0] + c.to_m[0]) / 2, (c.from_m[1] + c.to_m[1]) / 2
+        ax.annotate(str(k), (mx, my), ha="center", va="center", fontsize=7, weight="bold", color="black", zorder=12,
+                    bbox={"boxstyle": "circle,pad=0.2", "fc": "#ffcc80", "ec": "black", "lw": 0.8})
+    for name, (x, y), value in worst:
+        ax.plot([x], [y], marker="D", markersize=5, markerfacecolor="white", markeredgecolor="black", zorder=12)
+        ax.annotate(f"{value:.2g}", (x, y), xytext=(4, -8), textcoords="offset points", fontsize=6.5, zorder=12,
+                    bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "black", "lw": 0.5})
+
+
+def map_figure(assessment, ratio, title: str, crossings, areas, caption: str, structures) -> Figure:
+    """One complete map figure (not attached to pyplot)."""
+    site, pl = assessment.site, assessment.plan
+    fig = Figure(figsize=(7.5, 7.5 * (pl.y_m[-1] - pl.y_m[0] + 6) / (pl.x_m[-1] - pl.x_m[0] + 10)), layout="constrained")
+    ax = fig.add_subplot()
+    filled, *_ = draw_ratio(pl, ratio, ax)
+    draw_plan(site, ax, structures)
+    worst = [(a.name, a.where_m, a.max_ratio) for a in areas if a.exposure == "public" and a.where_m and a.max_ratio]
+    draw_marks(ax, crossings, worst)
+    extent = (pl.x_m[0], pl.x_m[-1], pl.y_m[0], pl.y_m[-1])
+    ax.set_xlim(extent[0], extent[1])
+    ax.set_ylim(extent[2], extent[3])
+    ax.set_aspect("equal")
+    draw_furniture(ax, site.north_deg, extent)
+    ax.set_xlabel("x east [m]")
+    ax.set_ylabel("y north [m]")
+    ax.set_title(f"{site.title}\n{title}", fontsize=10)
+    cb = fig.colorbar(filled, ax=ax, shrink=0.8, ticks=MAP_LEVELS)
+    cb.ax.set_yticklabels([f"{v:g}" for v in MAP_LEVELS])
+    cb.set_label("exposure ratio (1 = at the limit)")
+    cb.ax.axhline(1.0, color="black", linewidth=2.5)
+    add_legend(ax)
+    fig.get_layout_engine().set(rect=(0, 0.045, 1, 0.955))
+    fig.text(0.01, 0.004, "\n".join(textwrap.wrap(caption, 150)), fontsize=6, ha="left", va="bottom")
+    return fig
+
+
+def add_legend(ax, fields: bool = True):
+    """What the line styles and marks mean (readable in greyscale)."""
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
+    handles = [
+        Line2D([], [], color=TIER_STYLE["public"]["edgecolor"], linestyle="-", label="public area"),
+        Line2D([], [], color=TIER_STYLE["occupational"]["edgecolor"], linestyle=(0, (6, 2, 1, 2)), label="occupational area"),
+        Patch(facecolor="none", edgecolor="#555555", hatch="xx", label="not accessible"),
+        Line2D([], [], color="#6d4c41", linewidth=2.2, label="fence / line"),
+        Line2D([], [], color=WIRE_COLOUR, linewidth=1.6, label="antenna wire"),
+    ]
+    if fields:
+        handles += [
+            Line2D([], [], color="black", linewidth=2.0, label="limit (ratio 1)"),
+            Line2D([], [], color="#777777", linewidth=1.0, linestyle="--", label="0.5: usual safety margin"),
+            Patch(facecolor="white", edgecolor="#999999", hatch="////", label="too close to a wire (masked)"),
+            Line2D([], [], marker="D", color="none", markerfacecolor="white", markeredgecolor="black", label="worst point, value"),
+            Line2D([], [], color="#ff6f00", linewidth=4, label="line crossed (numbered)"),
+        ]
+    return ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.0, -0.02), fontsize=6, frameon=False, ncols=1)
+
+
+def caption_text(assessment) -> str:
+    import datetime as dt
+
+    from .exposure import limits
+
+    s = assessment.site
+    return (
+        f"{limits.STANDARD_TITLES[s.standard]}; tier per area (public outside every area); "
+        f"body line {s.grid.body.from_m:g}-{s.grid.body.to_m:g} m, {s.grid.body.points} points, {s.grid.spatial} of E^2 and H^2; "
+        f"time-averaged power (duty x transmit fraction x feedline loss); hatched: too close to a wire for the model; "
+        f"nfmap {__version__}, {dt.date.today().isoformat()}"
+    )
+
+
+def structures_of(assessment, name: str | None = None):
+    from .assess import _structure, highest_any
+
+    site = assessment.site
+    return {a.name: _structure(site, a.name, highest_any(site)).wires for a in site.antennas}
+
+
+def save_plan(site, path) -> None:
+    """The plan and antennas, no fields (for ``check``)."""
+    from .assess import _structure, highest_any, plan
+
+    pl = plan(site)
+    fig = Figure(figsize=(7.5, 7.5 * (pl.y_m[-1] - pl.y_m[0] + 6) / (pl.x_m[-1] - pl.x_m[0] + 10)), layout="constrained")
+    ax = fig.add_subplot()
+    wires = {a.name: _structure(site, a.name, highest_any(site)).wires for a in site.antennas}
+    draw_plan(site, ax, wires)
+    extent = (pl.x_m[0], pl.x_m[-1], pl.y_m[0], pl.y_m[-1])
+    ax.set_xlim(extent[0], extent[1])
+    ax.set_ylim(extent[2], extent[3])
+    ax.set_aspect("equal")
+    draw_furniture(ax, site.north_deg, extent)
+    ax.set_xlabel("x east [m]")
+    ax.set_ylabel("y north [m]")
+    ax.set_title(f"{site.title}\nplan and antennas (no fields computed)", fontsize=10)
+    add_legend(ax, fields=False)
+    fig.savefig(path, dpi=170)

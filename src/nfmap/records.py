@@ -1,0 +1,190 @@
+"""The station's records: results.json, fields.npz, exceedance.geojson, and the output folder.
+
+The folder is written to a temporary sibling and renamed into place, so a record is never left
+half written, and an existing folder is never replaced without ``force``.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+import math
+import shutil
+import tempfile
+from pathlib import Path
+
+import numpy as np
+import shapely
+
+from . import __version__
+from .assess import AreaResult, Assessment, exceedance_polygons
+from .exposure import limits
+
+CAUTIONS = (
+    "This is a computer model, not a measurement. Its results are only as good as the inputs "
+    "and the modelling assumptions listed in this record.",
+    "It is not a certificate. Local regulations, the regulator's requirements and a licensed or "
+    "otherwise qualified assessment prevail over anything shown here.",
+    "Keep people away from antennas and feed lines while transmitting; near the wires the "
+    "fields are far higher than anywhere on these maps, and contact with an antenna can burn.",
+    "Check the model with measurements where you can, and reassess when the station, the "
+    "operating habits or the surroundings change.",
+)
+
+
+class OutputExistsError(FileExistsError):
+    pass
+
+
+def _num(v):
+    if v is None:
+        return None
+    if isinstance(v, float) and math.isinf(v):
+        return None
+    return round(float(v), 6) if isinstance(v, float | np.floating) else v
+
+
+def _area_dict(areas: tuple[AreaResult, ...], attr: str) -> dict:
+    return {a.name: _num(getattr(a, attr)) for a in areas}
+
+
+def results_doc(a: Assessment) -> dict:
+    """Every figure of the report, machine-readable."""
+    site = a.site
+    txs = []
+    for t in a.transmissions:
+        spec = site.transmission(t.name)
+        txs.append(
+            {
+                "name": t.name,
+                "antenna": t.antenna,
+                "frequency_mhz": t.frequency_mhz,
+                "power_w": t.power_w,
+                "mode": spec.mode,
+                "duty_factor": spec.duty_factor,
+                "transmit_fraction": spec.transmit_fraction,
+                "feedline_loss_db": spec.feedline_loss_db,
+                "group": spec.group,
+                "feed_impedance_ohm": [_num(t.feed_impedance_ohm.real), _num(t.feed_impedance_ohm.imag)],
+                "average_power_w": _num(t.average_power_w),
+                "max_ratio_by_area": _area_dict(t.areas, "max_ratio"),
+                "worst_point_m_by_area": {x.name: x.where_m for x in t.areas},
+                "governing_by_area": _area_dict(t.areas, "governing"),
+                "exceedance_area_m2_by_area": _area_dict(t.areas, "exceedance_area_m2"),
+                "masked_points_by_area": _area_dict(t.areas, "masked_points"),
+                "crossings": [
+                    {"line": c.line, "from_m": list(c.from_m), "to_m": list(c.to_m), "length_m": c.length_m}
+                    for c in t.crossings
+                ],
+                "power_ceiling_w": _num(t.power_ceiling_w),
+                "power_ceiling_unlimited": t.power_ceiling_w is not None and math.isinf(t.power_ceiling_w),
+                "far_field_distance_m": _num(t.far_field_distance_m),
+                "model_distance_m": _num(t.model_distance_m),
+                "gain_dbi": _num(t.gain_dbi),
+                "masked_points": t.masked_points,
+                "warnings": list(t.warnings),
+            }
+        )
+    c = a.combined
+    return {
+        "tool_version": __version__,
+        "created": dt.datetime.now(dt.UTC).replace(microsecond=0).isoformat(),
+        "site_file": Path(site.path).name,
+        "site_sha256": site.sha256,
+        "title": site.title,
+        "standard": site.standard,
+        "standard_title": limits.STANDARD_TITLES[site.standard],
+        "ground": site.ground.describe(),
+        "h_method": a.h_method,
+        "lattice": {
+            "spacing_m": site.grid.spacing_m,
+            "x_m": [float(a.plan.x_m[0]), float(a.plan.x_m[-1])],
+            "y_m": [float(a.plan.y_m[0]), float(a.plan.y_m[-1])],
+            "body_heights_m": site.grid.body.heights_m().tolist(),
+            "spatial": site.grid.spatial,
+            "points_evaluated": a.points_evaluated,
+        },
+        "areas": [{"name": x.name, "exposure": x.exposure, "floor_m": x.floor_m} for x in site.areas],
+        "transmissions": txs,
+        "combined": {
+            "groups": [list(g) for g in c.groups],
+            "max_ratio_by_area": _area_dict(c.areas, "max_ratio"),
+            "worst_point_m_by_area": {x.name: x.where_m for x in c.areas},
+            "exceedance_area_m2_by_area": _area_dict(c.areas, "exceedance_area_m2"),
+            "masked_points_by_area": _area_dict(c.areas, "masked_points"),
+            "crossings": [
+                {"line": x.line, "from_m": list(x.from_m), "to_m": list(x.to_m), "length_m": x.length_m}
+                for x in c.crossings
+            ],
+        },
+        "over_limit": a.over,
+        "warnings": list(a.warnings),
+        "cautions": list(CAUTIONS),
+    }
+
+
+def geojson_doc(a: Assessment) -> dict:
+    """Polygons (site metres) where the ratio is at or above 1 and 0.5, per transmission and combined."""
+    feats = []
+    maps = [(t.name, t.frequency_mhz, t.ratio) for t in a.transmissions] + [("combined", None, a.combined.ratio)]
+    for name, f, ratio in maps:
+        for level in (1.0, 0.5):
+            region = exceedance_polygons(a.plan, ratio, level)
+            if region.is_empty:
+                continue
+            feats.append(
+                {
+                    "type": "Feature",
+                    "properties": {"name": name, "level": level, "frequency_mhz": f},
+                    "geometry": json.loads(shapely.to_geojson(region)),
+                }
+            )
+    return {
+        "type": "FeatureCollection",
+        "name": "nfmap exceedance",
+        "crs_note": "site metres: x east, y north (not geographic coordinates)",
+        "features": feats,
+    }
+
+
+def fields_arrays(a: Assessment) -> dict[str, np.ndarray]:
+    out = {"x_m": a.plan.x_m, "y_m": a.plan.y_m, "body_heights_m": a.site.grid.body.heights_m(),
+           "floor_m": a.plan.floor_m, "tier": a.plan.tier.astype(str)}
+    for i, t in enumerate(a.transmissions):
+        out[f"t{i}_name"] = np.array(t.name)
+        out[f"t{i}_e_v_per_m"] = t.e_v_per_m
+        out[f"t{i}_h_a_per_m"] = t.h_a_per_m
+        out[f"t{i}_e_peak_v_per_m"] = t.e_peak_v_per_m
+        out[f"t{i}_h_peak_a_per_m"] = t.h_peak_a_per_m
+        out[f"t{i}_ratio"] = t.ratio
+    out["combined_ratio"] = a.combined.ratio
+    return out
+
+
+def write_folder(out_dir: Path, force: bool, write) -> Path:
+    """Write into a temporary folder beside ``out_dir`` via ``write(tmp)``, then rename."""
+    out_dir = Path(out_dir)
+    if out_dir.exists() and not force:
+        raise OutputExistsError(f"{out_dir} exists; give --force to replace it")
+    out_dir.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}-", dir=out_dir.parent))
+    try:
+        write(tmp)
+        if out_dir.exists():
+            old = out_dir.with_name(f".{out_dir.name}-old")
+            shutil.rmtree(old, ignore_errors=True)
+            out_dir.rename(old)
+            tmp.rename(out_dir)
+            shutil.rmtree(old, ignore_errors=True)
+        else:
+            tmp.rename(out_dir)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    return out_dir
+
+
+def write_data(a: Assessment, folder: Path) -> None:
+    (folder / "results.json").write_text(json.dumps(results_doc(a), indent=2, allow_nan=False) + "\n")
+    (folder / "exceedance.geojson").write_text(json.dumps(geojson_doc(a), indent=1, allow_nan=False) + "\n")
+    np.savez_compressed(folder / "fields.npz", **fields_arrays(a))

@@ -1,0 +1,258 @@
+"""The record an inspector reads: report.pdf (matplotlib PdfPages) and the map PNGs."""
+
+from __future__ import annotations
+
+import datetime as dt
+import math
+import re
+import textwrap
+from pathlib import Path
+
+from matplotlib.backends.backend_pdf import PdfPages
+from matplotlib.figure import Figure
+
+from . import __version__, maps
+from .exposure import limits
+from .records import CAUTIONS
+
+A4_IN = (8.27, 11.69)
+LINE_IN = 0.19
+
+
+def _slug(name: str) -> str:
+    return re.sub(r"[^A-Za-z0-9]+", "-", name).strip("-").lower() or "transmission"
+
+
+def map_name(transmission: str) -> str:
+    return f"map-{_slug(transmission)}.png"
+
+
+class _Pages:
+    """Text pages with wrapping; a new page starts when one is full (pages never overflow)."""
+
+    def __init__(self, pdf: PdfPages, footer: str):
+        self.pdf, self.footer, self.fig, self.y, self.page = pdf, footer, None, 0.0, 0
+
+    def _new(self):
+        self.close()
+        self.page += 1
+        self.fig = Figure(figsize=A4_IN)
+        self.y = A4_IN[1] - 0.8
+        self.fig.text(0.5, 0.25 / A4_IN[1], f"{self.footer}  -  page {self.page}", ha="center", fontsize=7, color="#444")
+
+    def close(self):
+        if self.fig is not None:
+            self.pdf.savefig(self.fig)
+            self.fig = None
+
+    def line(self, text: str, size: float = 9, weight: str = "normal", indent: float = 0.0, width: int = 100,
+             mono: bool = False):
+        wrapped = textwrap.wrap(text, width=width - int(indent * 12)) or [""]
+        for part in wrapped:
+            if self.fig is None or self.y < 0.9:
+                self._new()
+            self.fig.text((0.7 + indent) / A4_IN[0], self.y / A4_IN[1], part, fontsize=size, weight=weight,
+                          family="monospace" if mono else "sans-serif", va="top")
+            self.y -= LINE_IN * size / 9
+
+    def gap(self, n: float = 0.5):
+        self.y -= LINE_IN * n
+
+    def heading(self, text: str):
+        if self.fig is not None and self.y < 2.0:
+            self._new()
+        self.gap(0.6)
+        self.line(text, size=12, weight="bold")
+        self.gap(0.3)
+
+    def table(self, header: list[str], rows: list[list[str]], widths: list[int]):
+        """A fixed-width table; cells wrap inside their column."""
+        def emit(cells, weight="normal"):
+            cols = [textwrap.wrap(c, w) or [""] for c, w in zip(cells, widths, strict=True)]
+            for k in range(max(len(c) for c in cols)):
+                self.line("  ".join((c[k] if k < len(c) else "").ljust(w) for c, w in zip(cols, widths, strict=True)),
+                          size=7.5, weight=weight, mono=True, width=200)
+        emit(header, "bold")
+        for r in rows:
+            emit(r)
+        self.gap(0.3)
+
+    def figure_page(self, fig: Figure):
+        self.close()
+        self.page += 1
+        fig.text(0.5, 0.003, f"{self.footer}  -  page {self.page}", ha="center", fontsize=6, color="#444")
+        self.pdf.savefig(fig)
+
+
+def _fmt(v, spec=".3g", none="-"):
+    return none if v is None or (isinstance(v, float) and not math.isfinite(v)) else format(v, spec)
+
+
+def verdict_sentence(area, over_word="OVER THE LIMIT") -> str:
+    if area.exposure == "none":
+        return f"{area.name}: not accessible (not judged)."
+    if area.max_ratio is None:
+        return f"{area.name}: every point too close to a wire for the model; not shown compliant."
+    x, y = area.where_m
+    state = over_word if area.max_ratio >= 1 else ("not shown within limit" if area.masked_points else "within limit")
+    text = f"{area.name}: {state}, worst {area.max_ratio:.2g} of the {area.exposure} limit at ({x:.1f}, {y:.1f}) m"
+    if area.max_ratio >= 1:
+        text += f", {area.exceedance_area_m2:.1f} m^2 at or above the limit"
+    if area.masked_points:
+        text += f"; {area.masked_points} plan points lie too close to a wire for the model and are not shown compliant"
+    return text + "."
+
+
+def write_maps_and_report(a, folder: Path) -> None:
+    caption = maps.caption_text(a)
+    wires = maps.structures_of(a)
+    figs = []
+    for t in a.transmissions:
+        title = f"{t.name}: {t.frequency_mhz:g} MHz, {t.power_w:g} W PEP, {t.average_power_w:.3g} W average"
+        fig = maps.map_figure(a, t.ratio, title, t.crossings, t.areas, caption, wires)
+        fig.savefig(folder / map_name(t.name), dpi=170)
+        figs.append(fig)
+    cfig = maps.map_figure(a, a.combined.ratio, "combined: groups summed, worst group shown", a.combined.crossings,
+                           a.combined.areas, caption, wires)
+    cfig.savefig(folder / "map-combined.png", dpi=170)
+    write_report(a, folder / "report.pdf", figs, cfig)
+
+
+def write_report(a, path: Path, figs, cfig) -> None:
+    site = a.site
+    today = dt.date.today().isoformat()
+    with PdfPages(path, metadata={"Title": f"RF exposure assessment: {site.title}", "Creator": f"nfmap {__version__}"}) as pdf:
+        pg = _Pages(pdf, f"{site.title} - nfmap {__version__} - {today}")
+        pg.line("RF exposure assessment", size=18, weight="bold")
+        pg.line(site.title, size=13)
+        pg.gap()
+        pg.line(f"Standard: {limits.STANDARD_TITLES[site.standard]}. Tier per area as listed; public outside every area.")
+        pg.line(f"Date: {today}.  Tool: nfmap {__version__}.  Site file: {Path(site.path).name}")
+        pg.line(f"SHA-256 of the site file: {site.sha256}", size=8, mono=True, width=120)
+        if site.notes:
+            pg.line(f"Site notes: {site.notes}")
+        pg.heading("Verdict")
+        worst_all = [ar for ar in a.combined.areas if ar.exposure != "none"]
+        over = a.over
+        pg.line("Some accessible place is over its limit, or cannot be shown within it." if over else
+                "Every accessible area is within its limit for every transmission and for the combined case.",
+                weight="bold")
+        for ar in worst_all:
+            pg.line(verdict_sentence(ar), indent=0.2)
+        pg.line("(Combined case: transmissions in one group summed; the worst group at each point.)", size=8)
+        for t in a.transmissions:
+            pg.line(f"{t.name}: highest power within limits {_ceiling(t)}.", indent=0.2)
+        pg.heading("Cautions")
+        for c in CAUTIONS:
+            pg.line(f"- {c}")
+        pg.heading("Station and operating inputs")
+        rows = []
+        for spec in site.antennas:
+            params = ", ".join(f"{k} {v}" for k, v in spec.params)
+            rows.append([spec.name, spec.kind, f"({spec.position_m[0]:g}, {spec.position_m[1]:g})", params])
+        pg.table(["antenna", "kind", "position m", "parameters"], rows, [18, 8, 12, 62])
+        rows = []
+        for t in site.transmissions:
+            rows.append([t.name, t.antenna, f"{t.frequency_mhz:g}", f"{t.power_w:g}", t.mode or "-",
+                         f"{t.duty_factor:g}", f"{t.transmit_fraction:g}", f"{t.feedline_loss_db:g}",
+                         f"{t.average_power_w:.3g}", t.group or "-"])
+        pg.table(["transmission", "antenna", "MHz", "PEP W", "mode", "duty", "fraction", "loss dB", "avg W", "group"],
+                 rows, [16, 16, 7, 6, 13, 5, 8, 7, 6, 8])
+        pg.line(f"Ground: {site.ground.describe()}.")
+        b = site.grid.body
+        pg.line(f"Lattice: {site.grid.spacing_m:g} m spacing, {len(a.plan.x_m)} x {len(a.plan.y_m)} plan points, "
+                f"x {a.plan.x_m[0]:g} to {a.plan.x_m[-1]:g} m, y {a.plan.y_m[0]:g} to {a.plan.y_m[-1]:g} m; "
+                f"{a.points_evaluated} field points in all.")
+        pg.line(f"Body line: {b.points} heights from {b.from_m:g} to {b.to_m:g} m above the floor of each area; "
+                f"{site.grid.spatial} of E^2 and of H^2 along it (ICNIRP 2020 spatial averaging of squared values).")
+        areas = [[ar.name, ar.exposure, f"{ar.floor_m:g}"] for ar in site.areas]
+        pg.table(["area", "tier", "floor m"], areas, [30, 14, 8])
+        for t in a.transmissions:
+            pg.heading(f"Transmission: {t.name}")
+            z = t.feed_impedance_ohm
+            pg.line(f"{t.frequency_mhz:g} MHz on {t.antenna}; feed impedance {z.real:.1f} {'+' if z.imag >= 0 else '-'} "
+                    f"j{abs(z.imag):.1f} ohm; {t.power_w:g} W PEP, {t.average_power_w:.3g} W average accepted "
+                    "(all of it radiated: conservative).")
+            rows = [[ar.name, ar.exposure, _fmt(ar.max_ratio), f"({ar.where_m[0]:.1f}, {ar.where_m[1]:.1f})" if ar.where_m else "-",
+                     ar.governing or "-", f"{ar.exceedance_area_m2:.1f}", str(ar.masked_points)] for ar in t.areas]
+            pg.table(["area", "tier", "max ratio", "where m", "by", "over m^2", "masked"], rows, [26, 12, 9, 14, 3, 8, 6])
+            if t.crossings:
+                pg.line("Crossings of lines by the region at or above the limit (numbered on the map):")
+                for k, c in enumerate(t.crossings, 1):
+                    pg.line(f"{k}. {c.line}: from ({c.from_m[0]:.1f}, {c.from_m[1]:.1f}) to ({c.to_m[0]:.1f}, "
+                            f"{c.to_m[1]:.1f}) m, {c.length_m:.1f} m long", indent=0.2)
+            else:
+                pg.line("No line is crossed by the region at or above the limit.")
+            pg.line(f"Highest power within limits: {_ceiling(t)}.")
+            pg.line(_distance_sentence(t))
+            if t.warnings:
+                pg.line("Modelling notes: " + "; ".join(t.warnings), size=8)
+        pg.heading("Combined")
+        pg.line("Groups (transmissions that run at the same time, ratios summed): "
+                + "; ".join(" + ".join(g) for g in a.combined.groups))
+        rows = [[ar.name, ar.exposure, _fmt(ar.max_ratio), f"({ar.where_m[0]:.1f}, {ar.where_m[1]:.1f})" if ar.where_m else "-",
+                 f"{ar.exceedance_area_m2:.1f}", str(ar.masked_points)] for ar in a.combined.areas]
+        pg.table(["area", "tier", "max ratio", "where m", "over m^2", "masked"], rows, [26, 12, 9, 14, 8, 6])
+        pg.heading("Assumptions and limitations")
+        for text in _assumptions(a):
+            pg.line(f"- {text}")
+        pg.heading("References")
+        for ref in REFERENCES:
+            pg.line(ref)
+        for fig in figs:
+            pg.figure_page(fig)
+        pg.figure_page(cfig)
+        pg.close()
+
+
+def _ceiling(t) -> str:
+    if t.power_ceiling_w is None or math.isinf(t.power_ceiling_w):
+        return "not limited by any accessible area on the lattice"
+    text = f"{t.power_ceiling_w:.0f} W PEP with the same mode and habits"
+    if t.masked_points:
+        text += " (points too close to a wire left out: keep people off those zones)"
+    return text
+
+
+def _distance_sentence(t) -> str:
+    ff = t.far_field_distance_m
+    md = t.model_distance_m
+    base = (f"Far-field estimate (FCC OET 65 Eq. 7, {t.gain_dbi:.1f} dBi free-space gain, ground reflection 2.56): "
+            f"the public limit is met beyond {ff:.1f} m. ")
+    if md is None:
+        return base + "The model finds no point at or above the public limit on the lattice."
+    if ff < md:
+        return base + (f"The model finds points at or above it out to {md:.1f} m: the far-field estimate is SHORTER "
+                       "than the model - here the simple formula would under-state the exposure.")
+    return base + (f"The model finds points at or above it out to {md:.1f} m, within the far-field estimate: "
+                   "the formula is conservative here.")
+
+
+def _assumptions(a) -> list[str]:
+    out = [
+        "NEC-2 thin-wire method of moments (PyNEC); wires are perfect conductors unless a load is listed; all the "
+        "accepted power is radiated (conservative).",
+        "Buildings, trees, fences, vehicles and people are not in the model; they can raise or lower the fields.",
+        f"Ground: {a.site.ground.describe()}, one model for the whole site.",
+        "Other antennas of the site stay in each model as passive structures with 50 ohm across their feeds.",
+        "Ground-mounted verticals over a finite ground are modelled with base and radials just above the surface "
+        "(NEC-2 cannot model buried wires); this tends to overstate the fields slightly. Over perfect ground they "
+        "connect to the ground plane with a loss resistor.",
+        "H over a finite ground is derived from the Sommerfeld E field by Faraday's law (central differences, 2 cm), "
+        "because NEC-2's near-H routine uses the reflection-coefficient approximation for the ground term."
+        if a.h_method == "curl" else "H is NEC's near-H field (exact for free space and perfect ground).",
+        "Masked: a plan point whose body line comes within the exclusion distance of a wire (10 radii or half a "
+        "segment, the larger) or below ground; its fields are not computed and it never counts as compliant.",
+        "The far-field estimate is shown only for comparison; the verdicts come from the model.",
+    ]
+    return out + list(a.warnings)
+
+
+REFERENCES = [
+    "[1] ICNIRP, Guidelines for limiting exposure to electromagnetic fields (100 kHz to 300 GHz), Health Phys. 118(5):483-524, 2020.",
+    "[2] ICNIRP, Guidelines for limiting exposure to time-varying electric, magnetic and electromagnetic fields (up to 300 GHz), Health Phys. 74(4):494-522, 1998.",
+    "[3] US 47 CFR 1.1310, Radiofrequency radiation exposure limits, Table 1.",
+    "[4] FCC OET Bulletin 65, Edition 97-01 (1997), and Supplement B (amateur stations).",
+    "[5] G. J. Burke, A. J. Poggio, Numerical Electromagnetics Code (NEC) - Method of Moments, LLNL, 1981.",
+    "[6] Rec. ITU-R P.527-3, Electrical characteristics of the surface of the Earth, 1992.",
+]

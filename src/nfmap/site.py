@@ -1,0 +1,459 @@
+"""Site file (TOML, ``format = 1``) to frozen dataclasses, validated before any solve.
+
+Every problem is collected (file, key path, what was found, what is allowed) and raised
+together as one :class:`SiteError`.
+"""
+
+from __future__ import annotations
+
+import difflib
+import hashlib
+import math
+import tomllib
+import warnings
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import shapely
+
+import antennas
+from antennas import GeometryError, Structure
+
+from . import engine
+from .exposure import averaging, limits
+
+TIERS = ("public", "occupational", "none")
+STRICTNESS = {"public": 0, "occupational": 1, "none": 2}  # lower = stricter
+
+
+class SiteError(ValueError):
+    """Bad site file: ``problems`` lists one line each (file, key, found, allowed)."""
+
+    def __init__(self, problems: list[str]):
+        self.problems = problems
+        super().__init__("\n".join(problems))
+
+
+class SiteWarning(UserWarning):
+    """Something in the site file that is allowed but worth saying (overlapping tiers...)."""
+
+
+@dataclass(frozen=True)
+class Grid:
+    spacing_m: float
+    margin_m: float
+    body: averaging.BodyLine
+    spatial: str
+
+
+@dataclass(frozen=True)
+class Area:
+    name: str
+    polygon: tuple[tuple[float, float], ...]
+    exposure: str
+    floor_m: float = 0.0
+
+    @property
+    def shape(self) -> shapely.Polygon:
+        return shapely.Polygon(self.polygon)
+
+
+@dataclass(frozen=True)
+class Line:
+    name: str
+    points: tuple[tuple[float, float], ...]
+
+
+@dataclass(frozen=True)
+class AntennaSpec:
+    name: str
+    kind: str
+    position_m: tuple[float, float]
+    params: tuple[tuple[str, Any], ...]  # builder keyword arguments, as given
+
+    def param(self, key: str, default=None):
+        return dict(self.params).get(key, default)
+
+
+@dataclass(frozen=True)
+class Transmission:
+    name: str
+    antenna: str
+    frequency_mhz: float
+    power_w: float
+    mode: str | None
+    duty_factor: float
+    transmit_fraction: float
+    feedline_loss_db: float
+    group: str | None
+
+    @property
+    def average_power_w(self) -> float:
+        return averaging.average_power_w(self.power_w, self.duty_factor, self.transmit_fraction, self.feedline_loss_db)
+
+
+@dataclass(frozen=True)
+class Site:
+    path: str
+    sha256: str
+    title: str
+    standard: str
+    north_deg: float
+    notes: str
+    ground: engine.Ground
+    grid: Grid
+    areas: tuple[Area, ...]
+    lines: tuple[Line, ...]
+    antennas: tuple[AntennaSpec, ...]
+    transmissions: tuple[Transmission, ...]
+    warnings: tuple[str, ...] = field(default=())
+
+    def antenna(self, name: str) -> AntennaSpec:
+        return next(a for a in self.antennas if a.name == name)
+
+    def transmission(self, name: str) -> Transmission:
+        for t in self.transmissions:
+            if t.name == name:
+                return t
+        raise SiteError([f"{self.path}: no transmission named {name!r}; valid: {', '.join(t.name for t in self.transmissions)}"])
+
+
+# -- the schema ---------------------------------------------------------------------------------
+
+NUM = (int, float)
+TOP_KEYS = {"format", "site", "ground", "grid", "area", "line", "antenna", "transmission"}
+SITE_KEYS = {"title", "standard", "north_deg", "notes"}
+GROUND_KEYS = {"kind", "permittivity", "conductivity_s_per_m"}
+GRID_KEYS = {"spacing_m", "margin_m", "body_from_m", "body_to_m", "body_points", "spatial"}
+AREA_KEYS = {"name", "polygon", "exposure", "floor_m"}
+LINE_KEYS = {"name", "points"}
+TX_KEYS = {"name", "antenna", "frequency_mhz", "power_w", "mode", "duty_factor", "transmit_fraction",
+           "feedline_loss_db", "group"}
+ANTENNA_KEYS = {
+    "dipole": {"length_m", "resonant_mhz", "height_m", "heading_deg", "apex_deg", "wire_diameter_mm"},
+    "vertical": {"length_m", "resonant_mhz", "base_height_m", "radials", "radial_length_m", "radial_droop_deg",
+                 "radial_height_m", "ground_loss_ohm", "wire_diameter_mm"},
+    "end-fed": {"length_m", "feed_height_m", "far_height_m", "heading_deg", "counterpoise_m", "wire_diameter_mm"},
+    "beam": {"elements", "element", "design_mhz", "height_m", "heading_deg", "element_diameter_mm"},
+    "wires": {"wire", "feed", "wire_diameter_mm"},
+}
+ANTENNA_REQUIRED = {
+    "dipole": {"height_m"},
+    "vertical": set(),
+    "end-fed": {"length_m", "feed_height_m", "far_height_m"},
+    "beam": {"design_mhz", "height_m"},
+    "wires": {"wire", "feed"},
+}
+ANTENNA_NUMBERS = {"length_m", "resonant_mhz", "height_m", "heading_deg", "apex_deg", "wire_diameter_mm",
+                   "base_height_m", "radial_length_m", "radial_droop_deg", "radial_height_m", "ground_loss_ohm",
+                   "feed_height_m", "far_height_m", "counterpoise_m", "design_mhz", "element_diameter_mm"}
+POSITIVE = {"length_m", "resonant_mhz", "wire_diameter_mm", "radial_length_m", "radial_height_m", "feed_height_m",
+            "far_height_m", "counterpoise_m", "design_mhz", "element_diameter_mm", "height_m"}
+
+
+class _Checker:
+    def __init__(self, path: str):
+        self.path = path
+        self.problems: list[str] = []
+
+    def bad(self, key: str, found: Any, allowed: str) -> None:
+        shown = repr(found) if not isinstance(found, dict | list) or len(repr(found)) < 60 else type(found).__name__
+        self.problems.append(f"{self.path}: {key}: found {shown}; allowed: {allowed}")
+
+    def keys(self, table: Any, allowed: set[str], where: str) -> bool:
+        if not isinstance(table, dict):
+            self.bad(where, table, "a table")
+            return False
+        for k in table:
+            if k not in allowed:
+                near = difflib.get_close_matches(k, sorted(allowed), n=1)
+                hint = f" (did you mean {near[0]!r}?)" if near else ""
+                self.problems.append(f"{self.path}: {where}.{k}: unknown key{hint}; allowed: {', '.join(sorted(allowed))}")
+        return True
+
+    def num(self, table: dict, key: str, where: str, default=None, lo=None, hi=None, lo_open=False, required=False):
+        if key not in table:
+            if required:
+                self.problems.append(f"{self.path}: {where}.{key}: missing; allowed: a number")
+            return default
+        v = table[key]
+        if isinstance(v, bool) or not isinstance(v, NUM) or not math.isfinite(v):
+            self.bad(f"{where}.{key}", v, "a finite number")
+            return default
+        if lo is not None and (v <= lo if lo_open else v < lo):
+            self.bad(f"{where}.{key}", v, f"a number {'>' if lo_open else '>='} {lo:g}" + (f" and <= {hi:g}" if hi is not None else ""))
+            return default
+        if hi is not None and v > hi:
+            self.bad(f"{where}.{key}", v, f"a number <= {hi:g}")
+            return default
+        return float(v)
+
+    def text(self, table: dict, key: str, where: str, default=None, choices=None, required=False):
+        if key not in table:
+            if required:
+                self.problems.append(
+                    f"{self.path}: {where}.{key}: missing; allowed: " + (", ".join(choices) if choices else "text")
+                )
+            return default
+        v = table[key]
+        if not isinstance(v, str) or (choices and v not in choices):
+            self.bad(f"{where}.{key}", v, ", ".join(choices) if choices else "text")
+            return default
+        if not choices and not v.strip():
+            self.bad(f"{where}.{key}", v, "non-empty text")
+            return default
+        return v
+
+    def points(self, table: dict, key: str, where: str, min_points: int) -> tuple | None:
+        v = table.get(key)
+        ok = isinstance(v, list) and len(v) >= min_points and all(
+            isinstance(p, list) and len(p) == 2 and all(isinstance(c, NUM) and not isinstance(c, bool) and math.isfinite(c) for c in p)
+            for p in v
+        )
+        if not ok:
+            self.bad(f"{where}.{key}", v, f"a list of at least {min_points} [x, y] pairs in metres")
+            return None
+        return tuple((float(x), float(y)) for x, y in v)
+
+
+def load(path: str | Path) -> Site:
+    """Read and validate a site file; raises :class:`SiteError` listing every problem."""
+    p = Path(path)
+    name = str(path)
+    try:
+        raw = p.read_bytes()
+    except OSError as err:
+        raise SiteError([f"{name}: cannot read the file ({err.strerror})"]) from None
+    try:
+        doc = tomllib.loads(raw.decode("utf-8"))
+    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as err:
+        raise SiteError([f"{name}: not a valid TOML file: {err}"]) from None
+    return parse(doc, name, hashlib.sha256(raw).hexdigest())
+
+
+def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
+    c = _Checker(name)
+    notes: list[str] = []
+    c.keys(doc, TOP_KEYS, "(top level)")
+    if doc.get("format") != 1:
+        c.bad("format", doc.get("format"), "1")
+    s = doc.get("site", {})
+    title = standard = None
+    north = 0.0
+    site_notes = ""
+    if c.keys(s, SITE_KEYS, "site"):
+        title = c.text(s, "title", "site", required=True)
+        standard = c.text(s, "standard", "site", choices=limits.STANDARDS, required=True)
+        north = c.num(s, "north_deg", "site", 0.0)
+        site_notes = s.get("notes", "") if isinstance(s.get("notes", ""), str) else c.bad("site.notes", s["notes"], "text") or ""
+
+    g = doc.get("ground", {"kind": "average"})
+    gnd = None
+    if c.keys(g, GROUND_KEYS, "ground"):
+        if "permittivity" in g or "conductivity_s_per_m" in g:
+            eps = c.num(g, "permittivity", "ground", lo=1, required=True)
+            sig = c.num(g, "conductivity_s_per_m", "ground", lo=0, required=True)
+            if "kind" in g:
+                c.bad("ground.kind", g["kind"], "omit kind when permittivity and conductivity_s_per_m are given")
+            if eps is not None and sig is not None:
+                gnd = engine.ground(permittivity=eps, conductivity_s_per_m=sig)
+        else:
+            kind = c.text(g, "kind", "ground", choices=engine.GROUND_KINDS, required=True)
+            gnd = engine.ground(kind) if kind else None
+
+    gr = doc.get("grid", {})
+    grid = None
+    if c.keys(gr, GRID_KEYS, "grid"):
+        spacing = c.num(gr, "spacing_m", "grid", 0.5, lo=0, lo_open=True)
+        margin = c.num(gr, "margin_m", "grid", 5.0, lo=0)
+        b_from = c.num(gr, "body_from_m", "grid", 0.2, lo=0)
+        b_to = c.num(gr, "body_to_m", "grid", 1.8, lo=0)
+        n = gr.get("body_points", 9)
+        if isinstance(n, bool) or not isinstance(n, int) or not 1 <= n <= 50:
+            c.bad("grid.body_points", n, "a whole number from 1 to 50")
+            n = 9
+        spatial = c.text(gr, "spatial", "grid", "average", choices=("average", "peak"))
+        if b_from is not None and b_to is not None and b_to < b_from:
+            c.bad("grid.body_to_m", b_to, f"a height >= body_from_m ({b_from:g})")
+        if spacing is not None and spacing < 0.05:
+            c.bad("grid.spacing_m", spacing, "at least 0.05 m")
+        if None not in (spacing, margin, b_from, b_to, spatial):
+            grid = Grid(spacing, margin, averaging.BodyLine(b_from, b_to, n), spatial)
+
+    areas = _tables(c, doc, "area")
+    area_list: list[Area] = []
+    for i, a in enumerate(areas):
+        where = f"area[{i + 1}]"
+        if not c.keys(a, AREA_KEYS, where):
+            continue
+        nm = c.text(a, "name", where, required=True)
+        poly = c.points(a, "polygon", where, 3)
+        tier = c.text(a, "exposure", where, "public", choices=TIERS)
+        floor = c.num(a, "floor_m", where, 0.0, lo=0)
+        if poly is not None:
+            shp = shapely.Polygon(poly)
+            if not shp.is_valid or shp.area <= 0:
+                c.bad(f"{where}.polygon", [list(p) for p in poly], "a simple polygon (no self-intersection, non-zero area)")
+                poly = None
+        if nm and poly and tier is not None and floor is not None:
+            area_list.append(Area(nm, poly, tier, floor))
+    _unique(c, [a.name for a in area_list], "area")
+    for i, a in enumerate(area_list):
+        for b in area_list[i + 1 :]:
+            if a.exposure != b.exposure and a.shape.intersection(b.shape).area > 1e-9:
+                strict = a if STRICTNESS[a.exposure] < STRICTNESS[b.exposure] else b
+                notes.append(
+                    f"areas {a.name!r} ({a.exposure}) and {b.name!r} ({b.exposure}) overlap; "
+                    f"the stricter tier ({strict.exposure}) applies where they overlap"
+                )
+
+    line_list: list[Line] = []
+    for i, ln in enumerate(_tables(c, doc, "line")):
+        where = f"line[{i + 1}]"
+        if not c.keys(ln, LINE_KEYS, where):
+            continue
+        nm = c.text(ln, "name", where, required=True)
+        pts = c.points(ln, "points", where, 2)
+        if nm and pts:
+            line_list.append(Line(nm, pts))
+    _unique(c, [ln.name for ln in line_list], "line")
+
+    ant_list: list[AntennaSpec] = []
+    for i, a in enumerate(_tables(c, doc, "antenna")):
+        where = f"antenna[{i + 1}]"
+        if not isinstance(a, dict):
+            c.bad(where, a, "a table")
+            continue
+        kind = c.text(a, "kind", where, choices=tuple(antennas.BUILDERS), required=True)
+        allowed = {"name", "kind", "position_m"} | ANTENNA_KEYS.get(kind, set())
+        c.keys(a, allowed, where)
+        nm = c.text(a, "name", where, required=True)
+        pos = a.get("position_m")
+        if not (isinstance(pos, list) and len(pos) == 2 and all(isinstance(v, NUM) and not isinstance(v, bool) for v in pos)):
+            c.bad(f"{where}.position_m", pos, "[x, y] in metres")
+            pos = None
+        if kind is None:
+            continue
+        for req in ANTENNA_REQUIRED[kind]:
+            if req not in a:
+                c.problems.append(f"{c.path}: {where}.{req}: missing; allowed: see the {kind} builder's parameters")
+        params = {}
+        for k in ANTENNA_KEYS[kind] & set(a):
+            v = a[k]
+            if k in ANTENNA_NUMBERS and not (k == "heading_deg" and kind == "beam" and v == "any"):
+                v = c.num(a, k, where, lo=0 if k in POSITIVE else None, lo_open=k in POSITIVE)
+                if v is None:
+                    continue
+            params[k] = v
+        if kind in ("dipole", "vertical") and ("length_m" in a) == ("resonant_mhz" in a):
+            c.problems.append(f"{c.path}: {where}: give exactly one of length_m and resonant_mhz")
+        if nm and pos is not None:
+            ant_list.append(AntennaSpec(nm, kind, (float(pos[0]), float(pos[1])), tuple(sorted(params.items()))))
+    _unique(c, [a.name for a in ant_list], "antenna")
+    if not ant_list and not any("antenna[" in p for p in c.problems):
+        c.problems.append(f"{name}: antenna: missing; allowed: at least one [[antenna]] table")
+
+    tx_list: list[Transmission] = []
+    ant_names = [a.name for a in ant_list]
+    for i, t in enumerate(_tables(c, doc, "transmission")):
+        where = f"transmission[{i + 1}]"
+        if not c.keys(t, TX_KEYS, where):
+            continue
+        nm = c.text(t, "name", where, required=True)
+        ant = c.text(t, "antenna", where, required=True)
+        if ant is not None and ant_list and ant not in ant_names:
+            near = difflib.get_close_matches(ant, ant_names, n=1)
+            hint = f" (did you mean {near[0]!r}?)" if near else ""
+            c.problems.append(f"{name}: {where}.antenna: no antenna named {ant!r}{hint}; allowed: {', '.join(ant_names)}")
+        f = c.num(t, "frequency_mhz", where, lo=0, lo_open=True, required=True)
+        pw = c.num(t, "power_w", where, lo=0, lo_open=True, required=True)
+        mode = c.text(t, "mode", where, choices=tuple(averaging.MODES))
+        duty = c.num(t, "duty_factor", where, lo=0, lo_open=True, hi=1)
+        if mode is None and duty is None and "mode" not in t and "duty_factor" not in t:
+            c.problems.append(f"{name}: {where}: give mode ({', '.join(averaging.MODES)}) or duty_factor (0..1]")
+        if mode is not None and "duty_factor" in t:
+            c.problems.append(f"{name}: {where}: give mode or duty_factor, not both")
+        if duty is None and mode is not None:
+            duty = averaging.duty_factor(mode)
+        frac = c.num(t, "transmit_fraction", where, 1.0, lo=0, lo_open=True, hi=1)
+        loss = c.num(t, "feedline_loss_db", where, 0.0, lo=0)
+        grp = c.text(t, "group", where)
+        if standard and f is not None:
+            for tier in ("public", "occupational"):
+                try:
+                    limits.limits(standard, tier, f)
+                except ValueError as err:
+                    c.problems.append(f"{name}: {where}.frequency_mhz: {err}")
+                    break
+        if None not in (nm, ant, f, pw, duty, frac, loss):
+            tx_list.append(Transmission(nm, ant, f, pw, mode, duty, frac, loss, grp))
+    _unique(c, [t.name for t in tx_list], "transmission")
+    if not tx_list and not any("transmission[" in p for p in c.problems):
+        c.problems.append(f"{name}: transmission: missing; allowed: at least one [[transmission]] table")
+    if c.problems:
+        raise SiteError(c.problems)
+    site = Site(name, sha256, title, standard, north, site_notes, gnd, grid, tuple(area_list), tuple(line_list),
+                tuple(ant_list), tuple(tx_list), tuple(notes))
+    # build every antenna once, so geometry errors surface here, before any solve
+    problems = []
+    for a in site.antennas:
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", antennas.ModelRuleWarning)
+                build(site, a, highest_frequency_mhz(site, a.name))
+        except (GeometryError, TypeError, ValueError) as err:
+            problems.append(f"{name}: antenna {a.name!r}: {err}")
+    if problems:
+        raise SiteError(problems)
+    for n in notes:
+        warnings.warn(n, SiteWarning, stacklevel=2)
+    return site
+
+
+def _tables(c: _Checker, doc: dict, key: str) -> list:
+    v = doc.get(key, [])
+    if not isinstance(v, list):
+        c.bad(key, v, f"an array of tables [[{key}]]")
+        return []
+    return v
+
+
+def _unique(c: _Checker, names: list[str], what: str) -> None:
+    seen = set()
+    for n in names:
+        if n in seen:
+            c.problems.append(f"{c.path}: {what}: the name {n!r} is used twice; allowed: unique names")
+        seen.add(n)
+
+
+def highest_frequency_mhz(site: Site, antenna: str | None = None) -> float:
+    """Highest frequency of the site's transmissions (on one antenna, if named; else of all)."""
+    fs = [t.frequency_mhz for t in site.transmissions if antenna is None or t.antenna == antenna]
+    return max(fs) if fs else max(t.frequency_mhz for t in site.transmissions)
+
+
+def build(
+    site: Site, spec: AntennaSpec, segment_mhz: float, heading_deg: float | None = None, passive: bool = False
+) -> Structure:
+    """The segmented structure of one antenna, for use at frequencies up to ``segment_mhz``.
+
+    A fed antenna gets segments of at most lambda/20 at the higher of ``segment_mhz`` and its own
+    highest transmission frequency; a passive one (another antenna's model) lambda/10 at
+    ``segment_mhz`` (the NEC-2 rule), or its own segmentation if that is finer.
+    """
+    kw = dict(spec.params)
+    if spec.kind == "vertical":
+        kw["ground"] = "free-space" if site.ground.kind == "free-space" else ("perfect" if site.ground.kind == "perfect" else "finite")
+    if spec.kind == "end-fed":
+        kw["design_mhz"] = min(t.frequency_mhz for t in site.transmissions if t.antenna == spec.name) if any(
+            t.antenna == spec.name for t in site.transmissions) else None
+    if spec.kind == "beam" and (heading_deg is not None or kw.get("heading_deg") == "any"):
+        kw["heading_deg"] = heading_deg or 0.0
+    structure = antennas.BUILDERS[spec.kind](spec.name, spec.position_m, **kw)
+    own_mhz = highest_frequency_mhz(site, spec.name)
+    if passive:
+        own = antennas.segment(structure, own_mhz)
+        coarse = antennas.segment(structure, segment_mhz, per_wavelength=10)
+        return own if own.segment_count >= coarse.segment_count else coarse
+    return antennas.segment(structure, max(segment_mhz, own_mhz))

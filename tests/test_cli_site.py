@@ -1,0 +1,59 @@
+"""The site commands as a user runs them."""
+
+import json
+import subprocess
+import sys
+from importlib import resources
+from pathlib import Path
+
+import pytest
+
+DEMO = str(resources.files("nfmap").joinpath("examples/demo.toml"))
+
+
+def nfmap(*args, cwd=None):
+    return subprocess.run([sys.executable, "-m", "nfmap", *args], capture_output=True, text=True, timeout=900, cwd=cwd)
+
+
+def test_check_json_and_plan(tmp_path):
+    r = nfmap("check", DEMO, "--json", "--plan", str(tmp_path / "plan.png"))
+    doc = json.loads(r.stdout)
+    assert r.returncode == 0 and doc["ok"] and len(doc["antennas"]) == 3
+    assert all(abs(a["agt_db"]) <= 0.2 for a in doc["antennas"])
+    assert (tmp_path / "plan.png").stat().st_size > 10_000
+
+
+def test_deck_prints_cards():
+    r = nfmap("deck", DEMO, "--transmission", "20 m CW")
+    assert r.returncode == 0 and r.stdout.startswith("CM") and "\nEN" in r.stdout and "GN 2" in r.stdout
+
+
+def test_bad_site_file_exit_2_without_traceback(tmp_path):
+    bad = tmp_path / "bad.toml"
+    bad.write_text(Path(DEMO).read_text().replace("power_w = 100", "power_w = -100").replace("spacing_m = 0.5", "spacing_m = 0"))
+    r = nfmap("run", str(bad), "-o", str(tmp_path / "out"))
+    assert r.returncode == 2 and "Traceback" not in r.stderr
+    lines = r.stderr.strip().splitlines()
+    assert any("transmission[3].power_w" in ln for ln in lines) and any("grid.spacing_m" in ln for ln in lines)
+    assert not (tmp_path / "out").exists()
+    r = nfmap("deck", DEMO, "--transmission", "nope")
+    assert r.returncode == 2 and "valid: 40 m phone" in r.stderr
+
+
+@pytest.mark.slow
+def test_demo_writes_every_output(tmp_path):
+    r = nfmap("demo", "-o", str(tmp_path / "d"), "--quiet")
+    assert r.returncode in (0, 1), r.stderr
+    out = tmp_path / "d" / "results"
+    for f in ("report.pdf", "results.json", "fields.npz", "exceedance.geojson", "map-combined.png",
+              "map-40-m-phone.png", "map-20-m-cw.png", "map-10-m-digital.png"):
+        assert (out / f).exists(), f
+    doc = json.loads((out / "results.json").read_text())
+    assert doc["site_sha256"] and len(doc["transmissions"]) == 3
+    again = nfmap("demo", "-o", str(tmp_path / "d"), "--quiet")
+    assert again.returncode == 2 and "--force" in again.stderr
+    from pypdf import PdfReader
+
+    text = "".join(p.extract_text() for p in PdfReader(out / "report.pdf").pages)
+    for needle in ("Verdict", "Cautions", "not a measurement", "Assumptions and limitations", "References"):
+        assert needle in text
