@@ -1,0 +1,47 @@
+"""Whole assessment of the demo at 0.5 m and 0.25 m spacing: wall time, peak memory, points,
+and the share of the time spent outside the engine's near-field evaluations.
+
+    python benchmarks/assess.py [--spacing 0.5 0.25] [--jobs 2]
+"""
+
+import argparse
+import dataclasses
+import resource
+import time
+import warnings
+from importlib import resources
+from unittest import mock
+
+from nfmap import assess, engine, site
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--spacing", type=float, nargs="+", default=[0.5, 0.25])
+    ap.add_argument("--jobs", type=int, default=2)
+    args = ap.parse_args()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        base = site.load(str(resources.files("nfmap").joinpath("examples/demo.toml")))
+    print(f"{'spacing m':>9} {'points':>9} {'wall s':>8} {'engine s':>9} {'total/engine':>13} {'peak MB':>8}")
+    for d in args.spacing:
+        s = dataclasses.replace(base, grid=dataclasses.replace(base.grid, spacing_m=d))
+        spent = [0.0]
+        real = engine.near_fields
+
+        def timed(*a, **k):
+            t = time.perf_counter()
+            out = real(*a, **k)
+            spent[0] += time.perf_counter() - t
+            return out
+
+        t = time.perf_counter()
+        with mock.patch.object(assess.engine, "near_fields", timed):
+            a = assess.assess(s, jobs=args.jobs)
+        wall = time.perf_counter() - t
+        peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+        print(f"{d:>9g} {a.points_evaluated:>9} {wall:>8.1f} {spent[0]:>9.1f} {wall / spent[0]:>13.2f} {peak:>8.0f}")
+
+
+if __name__ == "__main__":
+    main()

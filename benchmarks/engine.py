@@ -1,0 +1,84 @@
+"""Engine speed: near E+H points per second on a lattice around each default antenna over
+average ground, with 1 and 2 jobs, the overhead against a bare PyNEC script doing the same
+evaluations, and the cost of H relative to E.
+
+    python benchmarks/engine.py [--n 100] [--nz 9]
+"""
+
+import argparse
+import time
+import warnings
+
+import numpy as np
+
+import antennas
+from nfmap import engine
+
+CASES = {
+    "dipole 14.2 MHz at 10 m": (lambda: antennas.dipole("dipole", (0, 0), 10.0, resonant_mhz=14.2), 14.2),
+    "vertical 7.1 MHz, 4 radials": (lambda: antennas.vertical("vertical", (0, 0), resonant_mhz=7.1), 7.1),
+    "end-fed 20 m": (lambda: antennas.end_fed("end-fed", (0, 0), 20.0, 4.0, 9.0, design_mhz=7.1), 7.1),
+    "beam 28.4 MHz at 12 m": (lambda: antennas.beam("beam", (0, 0), 12.0, 28.4), 28.4),
+}
+
+
+def bare(model, lattice):
+    """The same quantities by the same method, straight PyNEC: six shifted E grids."""
+    import PyNEC
+
+    ctx = PyNEC.nec_context()
+    geo = ctx.get_geometry()
+    tag = 1
+    for s in model.structures:
+        for w in s.wires:
+            geo.wire(tag, w.segments, *w.start_m, *w.end_m, w.radius_m, 1.0, 1.0)
+            tag += 1
+    ctx.geometry_complete(1)
+    ctx.gn_card(2, 0, model.ground.permittivity, model.ground.conductivity_s_per_m, 0, 0, 0, 0)
+    ctx.fr_card(0, 1, model.frequency_mhz, 0)
+    ctx.ex_card(0, 1 + model.structures[0].feed_wire, model.structures[0].feed_segment(), 0, 1.0, 0, 0, 0, 0, 0)
+    ctx.xq_card(0)
+    (x0, y0, z0), (dx, dy, dz), (nx, ny, nz) = lattice.origin_m, lattice.step_m, lattice.shape
+    k = 0
+    for axis in range(3):
+        for sign in (1, -1):
+            o = [x0, y0, z0]
+            o[axis] += sign * 0.01
+            ctx.ne_card(0, nx, ny, nz, *o, dx, dy, dz)
+            nf = ctx.get_near_field_pattern(k)
+            np.asarray(nf.get_field_x()), np.asarray(nf.get_field_y()), np.asarray(nf.get_field_z())
+            k += 1
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--n", type=int, default=100)
+    ap.add_argument("--nz", type=int, default=9)
+    args = ap.parse_args()
+    print(f"lattice {args.n} x {args.n} x {args.nz}, 0.3 m spacing, average ground, H from curl E")
+    print(f"{'antenna':<30} {'segs':>5} {'pts/s 1 job':>12} {'pts/s 2 jobs':>13} {'speed-up':>9} {'overhead':>9} {'H/E cost':>9}")
+    for name, (make, f) in CASES.items():
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            s = antennas.segment(make(), f)
+        m = engine.Model((s,), 0, f, engine.ground("average"))
+        lat = engine.Lattice((-args.n * 0.15, -args.n * 0.15, 0.2), (0.3, 0.3, 0.2), (args.n, args.n, args.nz))
+        t = time.perf_counter()
+        engine.near_fields(m, lat, 100.0, jobs=1)
+        t1 = time.perf_counter() - t
+        t = time.perf_counter()
+        engine.near_fields(m, lat, 100.0, jobs=2)
+        t2 = time.perf_counter() - t
+        t = time.perf_counter()
+        bare(m, lat)
+        tb = time.perf_counter() - t
+        t = time.perf_counter()
+        engine.near_fields(m, lat, 100.0, jobs=1, h_method="nh")
+        tnh = time.perf_counter() - t
+        # E alone costs about half of the NE+NH pass; curl E is six E evaluations
+        print(f"{name:<30} {s.segment_count:>5} {lat.size / t1:>12.0f} {lat.size / t2:>13.0f} {t1 / t2:>9.2f} "
+              f"{t1 / tb:>9.2f} {t1 / (tnh / 2):>9.1f}")
+
+
+if __name__ == "__main__":
+    main()
