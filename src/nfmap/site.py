@@ -335,6 +335,11 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
             pos = None
         if kind is None:
             continue
+        if kind == "beam" and a.get("heading_deg") == "any":
+            c.problems.append(
+                f"{c.path}: {where}.heading_deg: found 'any'; the rotator envelope is not implemented yet; "
+                "allowed: a compass bearing in degrees (assess the worst heading towards each area)"
+            )
         for req in ANTENNA_REQUIRED[kind]:
             if req not in a:
                 c.problems.append(f"{c.path}: {where}.{req}: missing; allowed: see the {kind} builder's parameters")
