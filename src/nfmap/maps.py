@@ -129,13 +129,7 @@ def map_figure(assessment, ratio, title: str, crossings, areas, caption: str, st
     draw_plan(site, ax, structures)
     worst = [(a.name, a.where_m, a.max_ratio) for a in areas if a.exposure == "public" and a.where_m and a.max_ratio]
     draw_marks(ax, crossings, worst)
-    extent = (pl.x_m[0], pl.x_m[-1], pl.y_m[0], pl.y_m[-1])
-    ax.set_xlim(extent[0], extent[1])
-    ax.set_ylim(extent[2], extent[3])
-    ax.set_aspect("equal")
-    draw_furniture(ax, site.north_deg, extent)
-    ax.set_xlabel("x east [m]")
-    ax.set_ylabel("y north [m]")
+    frame(ax, site, pl)
     ax.set_title(f"{site.title}\n{title}", fontsize=10)
     cb = fig.colorbar(filled, ax=ax, shrink=0.8, ticks=MAP_LEVELS)
     cb.ax.set_yticklabels([f"{v:g}" for v in MAP_LEVELS])
@@ -170,6 +164,17 @@ def add_legend(ax, fields: bool = True):
     return ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.0, -0.02), fontsize=6, frameon=False, ncols=1)
 
 
+def frame(ax, site, pl) -> None:
+    """Plan extent, equal aspect, axis labels, north arrow and scale bar."""
+    extent = (pl.x_m[0], pl.x_m[-1], pl.y_m[0], pl.y_m[-1])
+    ax.set_xlim(extent[0], extent[1])
+    ax.set_ylim(extent[2], extent[3])
+    ax.set_aspect("equal")
+    draw_furniture(ax, site.north_deg, extent)
+    ax.set_xlabel("x east [m]")
+    ax.set_ylabel("y north [m]")
+
+
 def caption_text(assessment) -> str:
     import datetime as dt
 
@@ -200,13 +205,7 @@ def save_plan(site, path) -> None:
     ax = fig.add_subplot()
     wires = {a.name: _structure(site, a.name, highest_any(site)).wires for a in site.antennas}
     draw_plan(site, ax, wires)
-    extent = (pl.x_m[0], pl.x_m[-1], pl.y_m[0], pl.y_m[-1])
-    ax.set_xlim(extent[0], extent[1])
-    ax.set_ylim(extent[2], extent[3])
-    ax.set_aspect("equal")
-    draw_furniture(ax, site.north_deg, extent)
-    ax.set_xlabel("x east [m]")
-    ax.set_ylabel("y north [m]")
+    frame(ax, site, pl)
     ax.set_title(f"{site.title}\nplan and antennas (no fields computed)", fontsize=10)
     add_legend(ax, fields=False)
     fig.savefig(path, dpi=170)
