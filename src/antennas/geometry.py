@@ -290,3 +290,24 @@ def validate(structure: Structure, frequency_mhz: float, over_ground: bool) -> l
     for m in messages:
         warnings.warn(m, ModelRuleWarning, stacklevel=2)
     return messages
+
+
+def check_apart(structures: tuple[Structure, ...] | list[Structure]) -> None:
+    """Raise :class:`GeometryError` where wires of two different antennas touch or cross.
+
+    Separate antennas must stay separate conductors: touching wires would join them at a point
+    NEC-2 cannot model as a junction (common practice: keep them several radii apart).
+    """
+    for i, a in enumerate(structures):
+        for b in structures[i + 1 :]:
+            for wi, u in enumerate(a.wires):
+                for wj, v in enumerate(b.wires):
+                    dist, _, _ = _segment_distance(
+                        np.asarray(u.start_m, float), np.asarray(u.end_m, float),
+                        np.asarray(v.start_m, float), np.asarray(v.end_m, float),
+                    )
+                    if dist <= u.radius_m + v.radius_m:
+                        raise GeometryError(
+                            f"antennas {a.name!r} (wire {wi + 1}) and {b.name!r} (wire {wj + 1}) touch or cross "
+                            f"({dist * 1000:.1f} mm apart); move one of them"
+                        )

@@ -117,6 +117,12 @@ class Assessment:
         return any(a.over for a in self.combined.areas) or any(a.over for t in self.transmissions for a in t.areas)
 
 
+def tier_at(site: Site, x_m: float, y_m: float) -> str:
+    """The tier judged at a plan point: the strictest area covering it, ``public`` outside every area."""
+    covering = [a for a in site.areas if a.shape.covers(shapely.Point(x_m, y_m))]
+    return min(covering, key=lambda a: STRICTNESS[a.exposure]).exposure if covering else "public"
+
+
 def plan(site: Site) -> Plan:
     """The plan lattice from the extent of areas, lines and antennas plus the margin."""
     xs, ys = [], []

@@ -304,8 +304,6 @@ def _summary(a, out: Path) -> None:
 @click.option("--json", "as_json", is_flag=True)
 def check_cmd(site_file, plan_png, as_json):
     """Validate the file and the NEC rules, run the average gain test; no field solve."""
-    import antennas
-
     from . import assess, engine
     from .site import SiteError, load
 
@@ -321,13 +319,12 @@ def check_cmd(site_file, plan_png, as_json):
     warns: list[str] = list(site.warnings)
     ants = []
     for t in site.transmissions:
-        assess.model_for(site, t.name, warns)
+        _engine_errors(lambda t=t: assess.model_for(site, t.name, warns))
     for spec in site.antennas:
         s = assess._structure(site, spec.name, assess.highest_any(site))
         f = max(tr.frequency_mhz for tr in site.transmissions if tr.antenna == spec.name) if any(
             tr.antenna == spec.name for tr in site.transmissions) else assess.highest_any(site)
-        fs = antennas.segment(s, f) if site.ground.kind != "perfect" else s
-        agt, gain = _engine_errors(lambda fs=fs, f=f: engine.pattern_figures(_free(fs), f))
+        agt, gain = _engine_errors(lambda s=s, f=f: engine.pattern_figures(s, f))
         if abs(10 * math.log10(agt)) > 0.2:
             warns.append(f"antenna {spec.name!r}: average gain test {agt:.3f} ({10 * math.log10(agt):+.2f} dB), beyond 0.2 dB")
         ants.append({"name": spec.name, "kind": spec.kind, "wires": len(s.wires), "segments": s.segment_count,
@@ -348,13 +345,6 @@ def check_cmd(site_file, plan_png, as_json):
     if plan_png:
         click.echo(f"plan drawn to {plan_png}")
     return EXIT_OK
-
-
-def _free(structure):
-    """A structure as it stands, for the free-space average gain test (grounded verticals excluded)."""
-    from dataclasses import replace
-
-    return replace(structure, grounded=False)
 
 
 @main.command("probe")
@@ -380,18 +370,8 @@ def probe_cmd(site_file, at, exposure, only, as_json):
             raise InputError(f"--at {a!r}: allowed: X,Y,Z in metres, e.g. --at 3,4,1.5") from None
         pts.append(xyz)
     pts = np.array(pts)
-    pl = assess.plan(site)
-    tiers = []
-    for x, y, _ in pts:
-        tier = "public"
-        best = 99
-        for ar in site.areas:
-            from shapely import Point
-
-            if ar.shape.covers(Point(x, y)) and assess.STRICTNESS[ar.exposure] < best:
-                tier, best = ar.exposure, assess.STRICTNESS[ar.exposure]
-        tiers.append(exposure or ("public" if tier == "none" else tier))
-    del pl
+    # a point in a "none" area is still judged (against public): somebody asked about it
+    tiers = [exposure or {"none": "public"}.get(t, t) for t in (assess.tier_at(site, x, y) for x, y, _ in pts)]
     txs, rows = [], []
     for t in site.transmissions:
         if only and t.name not in only:

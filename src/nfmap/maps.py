@@ -114,7 +114,7 @@ def draw_marks(ax, crossings, worst):
         mx, my = (c.from_m[0] + c.to_m[0]) / 2, (c.from_m[1] + c.to_m[1]) / 2
         ax.annotate(str(k), (mx, my), ha="center", va="center", fontsize=7, weight="bold", color="black", zorder=12,
                     bbox={"boxstyle": "circle,pad=0.2", "fc": "#ffcc80", "ec": "black", "lw": 0.8})
-    for name, (x, y), value in worst:
+    for _name, (x, y), value in worst:
         ax.plot([x], [y], marker="D", markersize=5, markerfacecolor="white", markeredgecolor="black", zorder=12)
         ax.annotate(f"{value:.2g}", (x, y), xytext=(4, -8), textcoords="offset points", fontsize=6.5, zorder=12,
                     bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "black", "lw": 0.5})
@@ -189,22 +189,21 @@ def caption_text(assessment) -> str:
     )
 
 
-def structures_of(assessment, name: str | None = None):
+def wires_of(site) -> dict:
+    """Every antenna's wires as drawn on the plan, by antenna name."""
     from .assess import _structure, highest_any
 
-    site = assessment.site
     return {a.name: _structure(site, a.name, highest_any(site)).wires for a in site.antennas}
 
 
 def save_plan(site, path) -> None:
     """The plan and antennas, no fields (for ``check``)."""
-    from .assess import _structure, highest_any, plan
+    from .assess import plan
 
     pl = plan(site)
     fig = Figure(figsize=(7.5, 7.5 * (pl.y_m[-1] - pl.y_m[0] + 6) / (pl.x_m[-1] - pl.x_m[0] + 10)), layout="constrained")
     ax = fig.add_subplot()
-    wires = {a.name: _structure(site, a.name, highest_any(site)).wires for a in site.antennas}
-    draw_plan(site, ax, wires)
+    draw_plan(site, ax, wires_of(site))
     frame(ax, site, pl)
     ax.set_title(f"{site.title}\nplan and antennas (no fields computed)", fontsize=10)
     add_legend(ax, fields=False)

@@ -105,7 +105,7 @@ def verdict_sentence(area, over_word="OVER THE LIMIT") -> str:
 
 def write_maps_and_report(a, folder: Path) -> None:
     caption = maps.caption_text(a)
-    wires = maps.structures_of(a)
+    wires = maps.wires_of(a.site)
     figs = []
     for t in a.transmissions:
         title = f"{t.name}: {t.frequency_mhz:g} MHz, {t.power_w:g} W PEP, {t.average_power_w:.3g} W average"

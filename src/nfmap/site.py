@@ -346,6 +346,11 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
         params = {}
         for k in ANTENNA_KEYS[kind] & set(a):
             v = a[k]
+            if k in ("radials", "elements"):
+                low = 0 if k == "radials" else 2
+                if isinstance(v, bool) or not isinstance(v, int) or v < low or v > 64:
+                    c.bad(f"{where}.{k}", v, f"a whole number from {low} to 64")
+                    continue
             if k in ANTENNA_NUMBERS and not (k == "heading_deg" and kind == "beam" and v == "any"):
                 v = c.num(a, k, where, lo=0 if k in POSITIVE else None, lo_open=k in POSITIVE)
                 if v is None:
@@ -402,13 +407,22 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
                 tuple(ant_list), tuple(tx_list), tuple(notes))
     # build every antenna once, so geometry errors surface here, before any solve
     problems = []
+    built = []
     for a in site.antennas:
         try:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", antennas.ModelRuleWarning)
-                build(site, a, highest_frequency_mhz(site, a.name))
+                f = highest_frequency_mhz(site, a.name)
+                s = build(site, a, f)
+                antennas.validate(s, f, gnd.over_ground)
+                built.append(s)
         except (GeometryError, TypeError, ValueError) as err:
             problems.append(f"{name}: antenna {a.name!r}: {err}")
+    if not problems:
+        try:
+            antennas.check_apart(built)
+        except GeometryError as err:
+            problems.append(f"{name}: antenna: {err}")
     if problems:
         raise SiteError(problems)
     for n in notes:

@@ -113,3 +113,12 @@ def test_default_beam_recipe():
     assert els[0][0] == pytest.approx(1.05 * els[1][0]) and els[0][1] == pytest.approx(-0.2 * lam)
     assert els[2][0] == pytest.approx(0.95 * els[1][0]) and els[2][1] == pytest.approx(0.15 * lam)
     assert math.isclose(sum(1 for _ in els), 3)
+
+
+def test_antennas_that_touch_each_other_are_an_error():
+    a = _s(Wire((0, -2, 5), (0, 2, 5), 0.002, 5))
+    b = Structure("u", (Wire((-2, 0, 5), (2, 0, 5), 0.002, 5),), 0, 0.5)
+    with pytest.raises(GeometryError, match="touch or cross"):
+        antennas.check_apart([a, b])
+    c = Structure("v", (Wire((-2, 0, 6), (2, 0, 6), 0.002, 5),), 0, 0.5)
+    antennas.check_apart([a, c])
