@@ -63,10 +63,14 @@ class AreaResult:
 
 @dataclass(frozen=True)
 class Crossing:
+    """A stretch of a line inside the region at or above the limit (``masked``: inside the zone
+    too close to a wire for the model, which is never counted as compliant)."""
+
     line: str
     from_m: tuple[float, float]
     to_m: tuple[float, float]
     length_m: float
+    masked: bool = False
 
 
 @dataclass(frozen=True)
@@ -245,6 +249,13 @@ def assess(site: Site, jobs: int = 1, progress: Callable[[int], None] | None = N
                 (h_pk, averaging.spatial_peak(h_z)),
             ):
                 dst[sy, sx] = np.where(take, src, dst[sy, sx])
+        z = sol.feed_impedance_ohm
+        if abs(z.imag) > max(z.real, 50.0):
+            tx_notes.append(
+                f"{t.name}: feed impedance {z.real:.1f} {'+' if z.imag >= 0 else '-'} j{abs(z.imag):.1f} ohm is far from "
+                "resonance; check the antenna's dimensions (the fields are computed for the power accepted, so the "
+                "assessment stays valid for the model as described)"
+            )
         lim_pub = limits.limits(site.standard, "public", t.frequency_mhz)
         lim_occ = limits.limits(site.standard, "occupational", t.frequency_mhz)
         r_pub, g_pub = ratios.exposure_ratio(e, h, lim_pub)
@@ -300,9 +311,7 @@ def area_results(site: Site, pl: Plan, ratio: np.ndarray, gov: np.ndarray) -> tu
     return tuple(out)
 
 
-def exceedance_polygons(pl: Plan, ratio: np.ndarray, level: float) -> shapely.MultiPolygon:
-    """Where ratio >= level, as polygons in site metres; masked points count as exceeding."""
-    z = np.where(np.isnan(ratio), 1e6, ratio)
+def _filled(pl: Plan, z: np.ndarray, level: float) -> shapely.MultiPolygon:
     gen = contourpy.contour_generator(pl.x_m, pl.y_m, z, fill_type=contourpy.FillType.OuterOffset)
     polys, offsets = gen.filled(level, np.inf)
     shapes = []
@@ -313,18 +322,30 @@ def exceedance_polygons(pl: Plan, ratio: np.ndarray, level: float) -> shapely.Mu
     return shapely.MultiPolygon([s for s in shapes if s.is_valid and s.area > 0])
 
 
+def exceedance_polygons(pl: Plan, ratio: np.ndarray, level: float) -> shapely.MultiPolygon:
+    """Where the computed ratio is >= level, as polygons in site metres (masked points left out)."""
+    return _filled(pl, np.where(np.isnan(ratio), 0.0, ratio), level)
+
+
+def masked_polygons(pl: Plan, ratio: np.ndarray) -> shapely.MultiPolygon:
+    """The zone where the model gives no value (too close to a wire, or below ground)."""
+    return _filled(pl, np.isnan(ratio).astype(float), 0.5)
+
+
 def line_crossings(site: Site, pl: Plan, ratio: np.ndarray) -> tuple[Crossing, ...]:
-    """Stretches of each line inside the exceedance region (ratio >= 1)."""
-    region = exceedance_polygons(pl, ratio, 1.0)
+    """Stretches of each line inside the region at or above the limit, then inside the masked zone."""
+    over = exceedance_polygons(pl, ratio, 1.0)
+    masked = shapely.difference(masked_polygons(pl, ratio), over)
     out = []
-    for ln in site.lines:
-        inter = shapely.LineString(ln.points).intersection(region)
-        parts = getattr(inter, "geoms", [inter])
-        for part in parts:
-            if part.is_empty or part.length <= 0 or part.geom_type != "LineString":
-                continue
-            (x0, y0), (x1, y1) = part.coords[0], part.coords[-1]
-            out.append(Crossing(ln.name, (round(x0, 3), round(y0, 3)), (round(x1, 3), round(y1, 3)), round(part.length, 3)))
+    for flag, region in ((False, over), (True, masked)):
+        for ln in site.lines:
+            inter = shapely.LineString(ln.points).intersection(region)
+            for part in getattr(inter, "geoms", [inter]):
+                if part.is_empty or part.length <= 0 or part.geom_type != "LineString":
+                    continue
+                (x0, y0), (x1, y1) = part.coords[0], part.coords[-1]
+                out.append(Crossing(ln.name, (round(x0, 3), round(y0, 3)), (round(x1, 3), round(y1, 3)),
+                                    round(part.length, 3), flag))
     return tuple(out)
 
 

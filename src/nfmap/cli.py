@@ -245,6 +245,8 @@ def _run_site(site, out: Path, jobs: int, force: bool, quiet: bool) -> int:
 
     total = _points_total(site)
     show = not quiet and sys.stderr.isatty()
+    if not quiet and not show:
+        click.echo(f"computing near fields: {total} points over {len(site.transmissions)} transmissions, {jobs} jobs", err=True)
     with click.progressbar(length=total, label="near fields", file=sys.stderr) if show else _Null() as bar:
         a = _engine_errors(lambda: assess.assess(site, jobs=jobs, progress=bar.update))
     write_folder(out, force, lambda folder: _write_all(a, folder))

@@ -12,6 +12,7 @@ import math
 import textwrap
 
 import numpy as np
+import shapely
 from matplotlib.colors import BoundaryNorm
 from matplotlib.figure import Figure
 from matplotlib.patches import FancyArrow, Polygon, Rectangle
@@ -22,7 +23,7 @@ from .assess import MAP_LEVELS, Plan
 TIER_STYLE = {
     "public": {"edgecolor": "#00796b", "linestyle": "-", "linewidth": 1.6, "hatch": None},
     "occupational": {"edgecolor": "#00796b", "linestyle": (0, (6, 2, 1, 2)), "linewidth": 1.6, "hatch": None},
-    "none": {"edgecolor": "#555555", "linestyle": ":", "linewidth": 1.2, "hatch": "xx"},
+    "none": {"edgecolor": "#8a8a8a", "linestyle": ":", "linewidth": 1.2, "hatch": "x"},
 }
 WIRE_COLOUR = "#c2185b"
 
@@ -37,10 +38,14 @@ def draw_plan(site, ax, antennas_wires=None, label_areas=True):
         ax.add_patch(p)
         drawn.append(p)
         if label_areas:
-            cx = np.mean([q[0] for q in a.polygon])
-            cy = max(q[1] for q in a.polygon)
+            # label inside the polygon, at the middle of its widest row near the top
+            shape = a.shape
+            x0, y0, x1, y1 = shape.bounds
+            cy = y1 - min(0.12 * (y1 - y0), 1.5)
+            row = shape.intersection(shapely.LineString([(x0, cy), (x1, cy)]))
+            cx = row.centroid.x if not row.is_empty else shape.representative_point().x
             floor = f" (floor {a.floor_m:g} m)" if a.floor_m else ""
-            ax.annotate(f"{a.name}{floor}", (cx, cy), xytext=(0, -9), textcoords="offset points", ha="center",
+            ax.annotate(f"{a.name}{floor}", (cx, cy), xytext=(0, 0), textcoords="offset points", ha="center", va="center",
                         fontsize=6.5, color="#1b3a4b", zorder=6,
                         bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.7})
     for ln in site.lines:
@@ -54,10 +59,12 @@ def draw_plan(site, ax, antennas_wires=None, label_areas=True):
         for w in wires:
             ax.plot([w.start_m[0], w.end_m[0]], [w.start_m[1], w.end_m[1]], color="white", linewidth=3.2, zorder=7)
             ax.plot([w.start_m[0], w.end_m[0]], [w.start_m[1], w.end_m[1]], color=WIRE_COLOUR, linewidth=1.6, zorder=8)
-        xs = [c for w in wires for c in (w.start_m[0], w.end_m[0])]
-        ys = [c for w in wires for c in (w.start_m[1], w.end_m[1])]
-        ax.annotate(name, (max(xs), max(ys)), xytext=(3, 2), textcoords="offset points", fontsize=7,
-                    color=WIRE_COLOUR, weight="bold", zorder=9)
+        # label below the lowest (southernmost) end, clear of the wires
+        ends = [p for w in wires for p in (w.start_m, w.end_m)]
+        x, y = min(ends, key=lambda p: p[1])[:2]
+        ax.annotate(name, (x, y), xytext=(0, -7), textcoords="offset points", ha="center", va="top", fontsize=7,
+                    color=WIRE_COLOUR, weight="bold", zorder=9,
+                    bbox={"boxstyle": "round,pad=0.1", "fc": "white", "ec": "none", "alpha": 0.75})
     return drawn
 
 
@@ -110,7 +117,7 @@ def draw_marks(ax, crossings, worst):
     """Crossings numbered on their lines; the worst point of each public area with its value."""
     for k, c in enumerate(crossings, 1):
         ax.plot([c.from_m[0], c.to_m[0]], [c.from_m[1], c.to_m[1]], color="#ff6f00", linewidth=4.5, zorder=11,
-                solid_capstyle="butt")
+                solid_capstyle="butt", linestyle=(0, (1.5, 1)) if c.masked else "-")
         mx, my = (c.from_m[0] + c.to_m[0]) / 2, (c.from_m[1] + c.to_m[1]) / 2
         ax.annotate(str(k), (mx, my), ha="center", va="center", fontsize=7, weight="bold", color="black", zorder=12,
                     bbox={"boxstyle": "circle,pad=0.2", "fc": "#ffcc80", "ec": "black", "lw": 0.8})
@@ -159,7 +166,8 @@ def add_legend(ax, fields: bool = True):
             Line2D([], [], color="#777777", linewidth=1.0, linestyle="--", label="0.5: usual safety margin"),
             Patch(facecolor="white", edgecolor="#999999", hatch="////", label="too close to a wire (masked)"),
             Line2D([], [], marker="D", color="none", markerfacecolor="white", markeredgecolor="black", label="worst point, value"),
-            Line2D([], [], color="#ff6f00", linewidth=4, label="line crossed (numbered)"),
+            Line2D([], [], color="#ff6f00", linewidth=4, label="line crossed by limit region (numbered)"),
+            Line2D([], [], color="#ff6f00", linewidth=4, linestyle=(0, (1.5, 1)), label="line crossed by masked zone"),
         ]
     return ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.0, -0.02), fontsize=6, frameon=False, ncols=1)
 

@@ -17,7 +17,7 @@ import numpy as np
 import shapely
 
 from . import __version__
-from .assess import AreaResult, Assessment, exceedance_polygons
+from .assess import AreaResult, Assessment, exceedance_polygons, masked_polygons
 from .exposure import limits
 
 CAUTIONS = (
@@ -73,7 +73,8 @@ def results_doc(a: Assessment) -> dict:
                 "exceedance_area_m2_by_area": _area_dict(t.areas, "exceedance_area_m2"),
                 "masked_points_by_area": _area_dict(t.areas, "masked_points"),
                 "crossings": [
-                    {"line": c.line, "from_m": list(c.from_m), "to_m": list(c.to_m), "length_m": c.length_m}
+                    {"line": c.line, "from_m": list(c.from_m), "to_m": list(c.to_m), "length_m": c.length_m,
+                     "masked": c.masked}
                     for c in t.crossings
                 ],
                 "power_ceiling_w": _num(t.power_ceiling_w),
@@ -113,7 +114,8 @@ def results_doc(a: Assessment) -> dict:
             "exceedance_area_m2_by_area": _area_dict(c.areas, "exceedance_area_m2"),
             "masked_points_by_area": _area_dict(c.areas, "masked_points"),
             "crossings": [
-                {"line": x.line, "from_m": list(x.from_m), "to_m": list(x.to_m), "length_m": x.length_m}
+                {"line": x.line, "from_m": list(x.from_m), "to_m": list(x.to_m), "length_m": x.length_m,
+                 "masked": x.masked}
                 for x in c.crossings
             ],
         },
@@ -128,8 +130,8 @@ def geojson_doc(a: Assessment) -> dict:
     feats = []
     maps = [(t.name, t.frequency_mhz, t.ratio) for t in a.transmissions] + [("combined", None, a.combined.ratio)]
     for name, f, ratio in maps:
-        for level in (1.0, 0.5):
-            region = exceedance_polygons(a.plan, ratio, level)
+        for level in (1.0, 0.5, "masked"):
+            region = masked_polygons(a.plan, ratio) if level == "masked" else exceedance_polygons(a.plan, ratio, level)
             if region.is_empty:
                 continue
             feats.append(
@@ -142,7 +144,8 @@ def geojson_doc(a: Assessment) -> dict:
     return {
         "type": "FeatureCollection",
         "name": "nfmap exceedance",
-        "crs_note": "site metres: x east, y north (not geographic coordinates)",
+        "crs_note": "site metres: x east, y north (not geographic coordinates); level 'masked' is the zone too "
+        "close to a wire for the model, never counted as compliant",
         "features": feats,
     }
 

@@ -176,13 +176,7 @@ def write_report(a, path: Path, figs, cfig) -> None:
             rows = [[ar.name, ar.exposure, _fmt(ar.max_ratio), f"({ar.where_m[0]:.1f}, {ar.where_m[1]:.1f})" if ar.where_m else "-",
                      ar.governing or "-", f"{ar.exceedance_area_m2:.1f}", str(ar.masked_points)] for ar in t.areas]
             pg.table(["area", "tier", "max ratio", "where m", "by", "over m^2", "masked"], rows, [26, 12, 9, 14, 3, 8, 6])
-            if t.crossings:
-                pg.line("Crossings of lines by the region at or above the limit (numbered on the map):")
-                for k, c in enumerate(t.crossings, 1):
-                    pg.line(f"{k}. {c.line}: from ({c.from_m[0]:.1f}, {c.from_m[1]:.1f}) to ({c.to_m[0]:.1f}, "
-                            f"{c.to_m[1]:.1f}) m, {c.length_m:.1f} m long", indent=0.2)
-            else:
-                pg.line("No line is crossed by the region at or above the limit.")
+            _crossing_lines(pg, t.crossings)
             pg.line(f"Highest power within limits: {_ceiling(t)}.")
             pg.line(_distance_sentence(t))
             if t.warnings:
@@ -193,6 +187,7 @@ def write_report(a, path: Path, figs, cfig) -> None:
         rows = [[ar.name, ar.exposure, _fmt(ar.max_ratio), f"({ar.where_m[0]:.1f}, {ar.where_m[1]:.1f})" if ar.where_m else "-",
                  f"{ar.exceedance_area_m2:.1f}", str(ar.masked_points)] for ar in a.combined.areas]
         pg.table(["area", "tier", "max ratio", "where m", "over m^2", "masked"], rows, [26, 12, 9, 14, 8, 6])
+        _crossing_lines(pg, a.combined.crossings)
         pg.heading("Assumptions and limitations")
         for text in _assumptions(a):
             pg.line(f"- {text}")
@@ -203,6 +198,16 @@ def write_report(a, path: Path, figs, cfig) -> None:
             pg.figure_page(fig)
         pg.figure_page(cfig)
         pg.close()
+
+
+def _crossing_lines(pg, crossings) -> None:
+    over = [c for c in crossings if not c.masked]
+    if not over:
+        pg.line("No line is crossed by the region at or above the limit.")
+    for k, c in enumerate(crossings, 1):
+        what = "the zone too close to a wire for the model (not shown compliant)" if c.masked else "the region at or above the limit"
+        pg.line(f"{k}. {c.line} crosses {what}: from ({c.from_m[0]:.1f}, {c.from_m[1]:.1f}) to ({c.to_m[0]:.1f}, "
+                f"{c.to_m[1]:.1f}) m, {c.length_m:.1f} m long (numbered {k} on the map)", indent=0.2)
 
 
 def _ceiling(t) -> str:
