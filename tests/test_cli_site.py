@@ -30,7 +30,7 @@ def test_deck_prints_cards():
 
 def test_bad_site_file_exit_2_without_traceback(tmp_path):
     bad = tmp_path / "bad.toml"
-    bad.write_text(Path(DEMO).read_text().replace("power_w = 100", "power_w = -100").replace("spacing_m = 0.5", "spacing_m = 0"))
+    bad.write_text(Path(DEMO).read_text().replace("power_w = 400", "power_w = -400").replace("spacing_m = 0.5", "spacing_m = 0"))
     r = nfmap("run", str(bad), "-o", str(tmp_path / "out"))
     assert r.returncode == 2 and "Traceback" not in r.stderr
     lines = r.stderr.strip().splitlines()

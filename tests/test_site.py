@@ -49,7 +49,7 @@ def test_demo_is_valid():
         (lambda d: d["transmission"][0].__setitem__("frequency_mhz", 500000.0), "outside the table"),
         (lambda d: d["antenna"][2].__setitem__("heading_deg", "any"), "not implemented yet"),
         (lambda d: d["antenna"][0].__setitem__("radials", "four"), "antenna[1].radials: found 'four'"),
-        (lambda d: d["antenna"][1].__setitem__("position_m", [5, 25]), "touch or cross"),
+        (lambda d: d["antenna"][1].__setitem__("position_m", [5.5, 24.5]), "touch or cross"),
         (lambda d: d["antenna"][1].__setitem__("height_m", 0.5) or d["antenna"][1].__setitem__("apex_deg", 40),
          "at or below ground"),
     ],
