@@ -5,6 +5,7 @@ and the share of the time spent outside the engine's near-field evaluations.
 """
 
 import argparse
+import os
 import dataclasses
 import resource
 import time
@@ -15,7 +16,19 @@ from unittest import mock
 from nfmap import assess, engine, site
 
 
+def _timer(fn, spent):
+    def timed(*a, **k):
+        t = time.perf_counter()
+        out = fn(*a, **k)
+        spent[0] += time.perf_counter() - t
+        return out
+
+    return timed
+
+
 def main():
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS"):
+        os.environ.setdefault(var, "1")  # one core per job, as the CLI runs (PyNEC loads later)
     ap = argparse.ArgumentParser()
     ap.add_argument("--spacing", type=float, nargs="+", default=[0.5, 0.25])
     ap.add_argument("--jobs", type=int, default=2)
@@ -27,13 +40,7 @@ def main():
     for d in args.spacing:
         s = dataclasses.replace(base, grid=dataclasses.replace(base.grid, spacing_m=d))
         spent = [0.0]
-        real = engine.near_fields
-
-        def timed(*a, **k):
-            t = time.perf_counter()
-            out = real(*a, **k)
-            spent[0] += time.perf_counter() - t
-            return out
+        timed = _timer(engine.near_fields, spent)
 
         t = time.perf_counter()
         with mock.patch.object(assess.engine, "near_fields", timed):

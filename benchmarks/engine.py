@@ -6,6 +6,7 @@ evaluations, and the cost of H relative to E.
 """
 
 import argparse
+import os
 import time
 import warnings
 
@@ -51,6 +52,8 @@ def bare(model, lattice):
 
 
 def main():
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS"):
+        os.environ.setdefault(var, "1")  # one core per job, as the CLI runs (PyNEC loads later)
     ap = argparse.ArgumentParser()
     ap.add_argument("--n", type=int, default=100)
     ap.add_argument("--nz", type=int, default=9)

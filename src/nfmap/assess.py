@@ -221,66 +221,70 @@ def assess(site: Site, jobs: int = 1, progress: Callable[[int], None] | None = N
     results = []
     points = 0
     h_method = engine.default_h_method(site.ground)
-    for t in site.transmissions:
-        tx_notes: list[str] = []
-        model = model_for(site, t.name, tx_notes)
-        for s in model.structures:
-            for n in s.notes:
-                if n not in tx_notes:
-                    tx_notes.append(n)
-        e = np.full(pl.shape, np.nan)
-        h = np.full(pl.shape, np.nan)
-        e_pk = np.full(pl.shape, np.nan)
-        h_pk = np.full(pl.shape, np.nan)
-        sol = None
-        for floor, lat, (sy, sx) in lats:
-            nf = engine.near_fields(model, lat, t.average_power_w, jobs=jobs, progress=progress)
-            sol = nf.solution
-            points += lat.size
-            nx, ny, nz = lat.shape
-            e_z = engine.rms_magnitude(nf.e_v_per_m).reshape(nz, ny, nx)
-            h_z = engine.rms_magnitude(nf.h_a_per_m).reshape(nz, ny, nx)
-            scheme = site.grid.spatial
-            take = pl.floor_m[sy, sx] == floor
-            for dst, src in (
-                (e, averaging.body_reduce(e_z, scheme)),
-                (h, averaging.body_reduce(h_z, scheme)),
-                (e_pk, averaging.spatial_peak(e_z)),
-                (h_pk, averaging.spatial_peak(h_z)),
-            ):
-                dst[sy, sx] = np.where(take, src, dst[sy, sx])
-        z = sol.feed_impedance_ohm
-        if abs(z.imag) > max(z.real, 50.0):
-            tx_notes.append(
-                f"{t.name}: feed impedance {z.real:.1f} {'+' if z.imag >= 0 else '-'} j{abs(z.imag):.1f} ohm is far from "
-                "resonance; check the antenna's dimensions (the fields are computed for the power accepted, so the "
-                "assessment stays valid for the model as described)"
-            )
-        lim_pub = limits.limits(site.standard, "public", t.frequency_mhz)
-        lim_occ = limits.limits(site.standard, "occupational", t.frequency_mhz)
-        r_pub, g_pub = ratios.exposure_ratio(e, h, lim_pub)
-        r_occ, g_occ = ratios.exposure_ratio(e, h, lim_occ)
-        occ = pl.tier == "occupational"
-        ratio = np.where(occ, r_occ, r_pub)
-        gov = np.where(occ, g_occ, g_pub)
-        areas = area_results(site, pl, ratio, gov)
-        crossings = line_crossings(site, pl, ratio)
-        structure = model.structures[model.active]
-        agt, gain_dbi = engine.pattern_figures(structure, t.frequency_mhz)
-        ff = farfield.distance_to_limit_m(t.average_power_w, 10 ** (gain_dbi / 10), lim_pub)
-        results.append(
-            TransmissionResult(
-                t.name, t.antenna, t.frequency_mhz, t.power_w, t.average_power_w, sol.feed_impedance_ohm,
-                ratio, r_pub, gov, e, h, e_pk, h_pk, areas, crossings,
-                power_ceiling_w(t.power_w, areas), model_distance_m(pl, r_pub, structure), ff, gain_dbi,
-                int(np.isnan(ratio).sum()), tuple(tx_notes),
-            )
-        )
-        for n in tx_notes:
-            if n not in notes:
-                notes.append(n)
+    with engine.Workers(jobs) as workers:
+        for t in site.transmissions:
+            results.append(_one(site, pl, lats, t, workers, progress, notes))
+            points += sum(lat.size for _, lat, _ in lats)
     comb = combined(site, pl, results)
     return Assessment(site, pl, tuple(results), comb, points, h_method, tuple(notes))
+
+
+def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
+    """One transmission: solve, fields on every lattice, body reduction, ratios and figures."""
+    tx_notes: list[str] = []
+    model = model_for(site, t.name, tx_notes)
+    for s in model.structures:
+        for n in s.notes:
+            if n not in tx_notes:
+                tx_notes.append(n)
+    e = np.full(pl.shape, np.nan)
+    h = np.full(pl.shape, np.nan)
+    e_pk = np.full(pl.shape, np.nan)
+    h_pk = np.full(pl.shape, np.nan)
+    sol = None
+    for floor, lat, (sy, sx) in lats:
+        nf = engine.near_fields(model, lat, t.average_power_w, jobs=workers, progress=progress)
+        sol = nf.solution
+        nx, ny, nz = lat.shape
+        e_z = engine.rms_magnitude(nf.e_v_per_m).reshape(nz, ny, nx)
+        h_z = engine.rms_magnitude(nf.h_a_per_m).reshape(nz, ny, nx)
+        scheme = site.grid.spatial
+        take = pl.floor_m[sy, sx] == floor
+        for dst, src in (
+            (e, averaging.body_reduce(e_z, scheme)),
+            (h, averaging.body_reduce(h_z, scheme)),
+            (e_pk, averaging.spatial_peak(e_z)),
+            (h_pk, averaging.spatial_peak(h_z)),
+        ):
+            dst[sy, sx] = np.where(take, src, dst[sy, sx])
+    z = sol.feed_impedance_ohm
+    if abs(z.imag) > max(z.real, 50.0):
+        tx_notes.append(
+            f"{t.name}: feed impedance {z.real:.1f} {'+' if z.imag >= 0 else '-'} j{abs(z.imag):.1f} ohm is far from "
+            "resonance; check the antenna's dimensions (the fields are computed for the power accepted, so the "
+            "assessment stays valid for the model as described)"
+        )
+    lim_pub = limits.limits(site.standard, "public", t.frequency_mhz)
+    lim_occ = limits.limits(site.standard, "occupational", t.frequency_mhz)
+    r_pub, g_pub = ratios.exposure_ratio(e, h, lim_pub)
+    r_occ, g_occ = ratios.exposure_ratio(e, h, lim_occ)
+    occ = pl.tier == "occupational"
+    ratio = np.where(occ, r_occ, r_pub)
+    gov = np.where(occ, g_occ, g_pub)
+    areas = area_results(site, pl, ratio, gov)
+    crossings = line_crossings(site, pl, ratio)
+    structure = model.structures[model.active]
+    agt, gain_dbi = engine.pattern_figures(structure, t.frequency_mhz)
+    ff = farfield.distance_to_limit_m(t.average_power_w, 10 ** (gain_dbi / 10), lim_pub)
+    for n in tx_notes:
+        if n not in notes:
+            notes.append(n)
+    return TransmissionResult(
+        t.name, t.antenna, t.frequency_mhz, t.power_w, t.average_power_w, sol.feed_impedance_ohm,
+        ratio, r_pub, gov, e, h, e_pk, h_pk, areas, crossings,
+        power_ceiling_w(t.power_w, areas), model_distance_m(pl, r_pub, structure), ff, gain_dbi,
+        int(np.isnan(ratio).sum()), tuple(tx_notes),
+    )
 
 
 def area_results(site: Site, pl: Plan, ratio: np.ndarray, gov: np.ndarray) -> tuple[AreaResult, ...]:

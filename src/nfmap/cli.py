@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import json
 import math
+import os
 import sys
 import warnings
 from pathlib import Path
@@ -62,6 +63,9 @@ class _Group(click.Group):
     """Turns click's usage errors into the one-line form with exit code 2."""
 
     def main(self, args=None, prog_name=None, **kwargs):
+        # one thread per process: --jobs decides how many cores work (PyNEC is imported later)
+        for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS"):
+            os.environ.setdefault(var, "1")
         try:
             rv = super().main(args, prog_name or "nfmap", standalone_mode=False, **kwargs)
         except click.exceptions.Exit as err:

@@ -365,6 +365,52 @@ def _worker_init() -> None:
         os.environ[var] = "1"
 
 
+class Workers:
+    """Worker processes kept for several near-field runs (use as a context manager).
+
+    Each worker builds and solves its own PyNEC context per chunk (contexts cannot be pickled),
+    with OpenMP/OpenBLAS threads set to 1. Keeping the pool for a whole assessment pays the
+    process start-up (about a second: Python, numpy and PyNEC imports) once.
+    """
+
+    def __init__(self, jobs: int = 1):
+        if jobs < 1:
+            raise ValueError(f"jobs must be >= 1, got {jobs}")
+        self.jobs = int(jobs)
+        self._pool: ProcessPoolExecutor | None = None
+
+    def __enter__(self) -> Workers:
+        if self.jobs > 1:
+            import multiprocessing
+
+            self._pool = ProcessPoolExecutor(
+                self.jobs, mp_context=multiprocessing.get_context("spawn"), initializer=_worker_init
+            )
+        return self
+
+    def __exit__(self, *exc) -> None:
+        if self._pool is not None:
+            self._pool.shutdown(cancel_futures=True)
+            self._pool = None
+
+    def run(self, fn, tasks: list[tuple], done: Callable[[int], None] | None = None) -> list:
+        """``[fn(*t) for t in tasks]`` in order, in the pool when there is one and more than one task."""
+        if self._pool is None or len(tasks) == 1:
+            out = []
+            for t in tasks:
+                out.append(fn(*t))
+                if done:
+                    done(len(out) - 1)
+            return out
+        futures = [self._pool.submit(fn, *t) for t in tasks]
+        out = []
+        for k, f in enumerate(futures):
+            out.append(f.result())
+            if done:
+                done(k)
+        return out
+
+
 def _task(model: Model, where, h_method: str, step_m: float):
     ctx, sol = _build(model)
     counter = _Counter(ctx)
@@ -376,7 +422,7 @@ def near_fields(
     model: Model,
     where: Lattice | np.ndarray,
     power_w: float,
-    jobs: int = 1,
+    jobs: int | Workers = 1,
     h_method: str | None = None,
     step_m: float = CURL_STEP_M,
     progress: Callable[[int], None] | None = None,
@@ -388,8 +434,9 @@ def near_fields(
     where : Lattice or array (N, 3) [m]
     power_w : float
         Accepted (input) power at the feed [W].
-    jobs : int
-        Worker processes; each builds and solves its own context. Results do not depend on it.
+    jobs : int or Workers
+        Worker processes (or a pool kept by the caller); each builds and solves its own
+        context. Results do not depend on it.
     h_method : {"nh", "curl"}
         H from NEC's NH card or from curl E; default "curl" over a finite ground, else "nh".
     progress : callable
@@ -420,20 +467,18 @@ def near_fields(
     results = []
     if not chunks:
         sol = solve(model)
-    elif jobs <= 1 or len(chunks) == 1:
-        for c in chunks:
-            results.append(_task(model, c, h_method, step_m))
-            if progress:
-                progress(c.size if isinstance(c, Lattice) else len(c))
     else:
-        import multiprocessing
+        def done(k: int) -> None:
+            if progress:
+                c = chunks[k]
+                progress(c.size if isinstance(c, Lattice) else len(c))
 
-        with ProcessPoolExecutor(jobs, mp_context=multiprocessing.get_context("spawn"), initializer=_worker_init) as pool:
-            futures = [pool.submit(_task, model, c, h_method, step_m) for c in chunks]
-            for c, f in zip(chunks, futures, strict=True):
-                results.append(f.result())
-                if progress:
-                    progress(c.size if isinstance(c, Lattice) else len(c))
+        tasks = [(model, c, h_method, step_m) for c in chunks]
+        if isinstance(jobs, Workers):
+            results = jobs.run(_task, tasks, done)
+        else:
+            with Workers(jobs if len(chunks) > 1 else 1) as pool:
+                results = pool.run(_task, tasks, done)
     if results:
         sol = results[0][2]
         e_all = np.concatenate([r[0] for r in results])
