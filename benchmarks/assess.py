@@ -5,8 +5,8 @@ and the share of the time spent outside the engine's near-field evaluations.
 """
 
 import argparse
-import os
 import dataclasses
+import os
 import resource
 import time
 import warnings
