@@ -47,7 +47,7 @@ def test_demo_is_valid():
         (lambda d: d["antenna"][0].pop("position_m"), "antenna[1].position_m"),
         (lambda d: d["transmission"][0].__setitem__("frequency_mhz", "seven"), "a finite number"),
         (lambda d: d["transmission"][0].__setitem__("frequency_mhz", 500000.0), "outside the table"),
-        (lambda d: d["antenna"][2].__setitem__("heading_deg", "any"), "not implemented yet"),
+        (lambda d: d["antenna"][1].__setitem__("heading_deg", "any"), "'any' is for a beam on a rotator"),
         (lambda d: d["antenna"][0].__setitem__("radials", "four"), "antenna[1].radials: found 'four'"),
         (lambda d: d["antenna"][1].__setitem__("position_m", [5.5, 24.5]), "touch or cross"),
         (lambda d: d["antenna"][1].__setitem__("height_m", 0.5) or d["antenna"][1].__setitem__("apex_deg", 40),

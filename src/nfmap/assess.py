@@ -169,15 +169,20 @@ def _structure(site: Site, name: str, segment_mhz: float, heading_deg: float | N
         return build(site, site.antenna(name), segment_mhz, heading_deg)
 
 
-def model_for(site: Site, transmission: str, collect: list[str] | None = None) -> engine.Model:
-    """The engine model of one transmission: every antenna, this one fed, the rest passive."""
+def model_for(
+    site: Site, transmission: str, collect: list[str] | None = None, heading_deg: float | None = None
+) -> engine.Model:
+    """The engine model of one transmission: every antenna, this one fed, the rest passive.
+
+    ``heading_deg`` turns the fed antenna if it is a beam on a rotator (default heading 0).
+    """
     t = site.transmission(transmission)
     structures = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", antennas.ModelRuleWarning)
         for spec in site.antennas:
             if spec.name == t.antenna:
-                s = build(site, spec, t.frequency_mhz)  # lambda/20 at its own highest frequency
+                s = build(site, spec, t.frequency_mhz, heading_deg)  # lambda/20 at its own highest frequency
             else:
                 s = build(site, spec, t.frequency_mhz, passive=True)  # passive: lambda/10 at this one
             antennas.validate(s, t.frequency_mhz, site.ground.over_ground)
@@ -224,39 +229,85 @@ def assess(site: Site, jobs: int = 1, progress: Callable[[int], None] | None = N
     with engine.Workers(jobs) as workers:
         for t in site.transmissions:
             results.append(_one(site, pl, lats, t, workers, progress, notes))
-            points += sum(lat.size for _, lat, _ in lats)
+            points += sum(lat.size for _, lat, _ in lats) * len(headings_for(site, t.antenna))
     comb = combined(site, pl, results)
     return Assessment(site, pl, tuple(results), comb, points, h_method, tuple(notes))
 
 
-def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
-    """One transmission: solve, fields on every lattice, body reduction, ratios and figures."""
-    tx_notes: list[str] = []
-    model = model_for(site, t.name, tx_notes)
-    for s in model.structures:
-        for n in s.notes:
-            if n not in tx_notes:
-                tx_notes.append(n)
-    e = np.full(pl.shape, np.nan)
-    h = np.full(pl.shape, np.nan)
-    e_pk = np.full(pl.shape, np.nan)
-    h_pk = np.full(pl.shape, np.nan)
+ROTATOR_HEADINGS_DEG = tuple(range(0, 360, 45))
+
+
+def headings_for(site: Site, antenna: str) -> tuple[float | None, ...]:
+    """The headings to assess: every 45 degrees for a beam on a rotator (``heading_deg = "any"``)."""
+    spec = site.antenna(antenna)
+    return ROTATOR_HEADINGS_DEG if spec.kind == "beam" and spec.param("heading_deg") == "any" else (None,)
+
+
+def _body_maps(site, pl, lats, model, power_w, workers, progress):
+    """Body-reduced E and H (scheme of the site) and their spatial peaks on the plan, and the solution."""
+    maps = [np.full(pl.shape, np.nan) for _ in range(4)]
     sol = None
     for floor, lat, (sy, sx) in lats:
-        nf = engine.near_fields(model, lat, t.average_power_w, jobs=workers, progress=progress)
+        nf = engine.near_fields(model, lat, power_w, jobs=workers, progress=progress)
         sol = nf.solution
         nx, ny, nz = lat.shape
         e_z = engine.rms_magnitude(nf.e_v_per_m).reshape(nz, ny, nx)
         h_z = engine.rms_magnitude(nf.h_a_per_m).reshape(nz, ny, nx)
-        scheme = site.grid.spatial
         take = pl.floor_m[sy, sx] == floor
-        for dst, src in (
-            (e, averaging.body_reduce(e_z, scheme)),
-            (h, averaging.body_reduce(h_z, scheme)),
-            (e_pk, averaging.spatial_peak(e_z)),
-            (h_pk, averaging.spatial_peak(h_z)),
-        ):
+        reduced = (
+            averaging.body_reduce(e_z, site.grid.spatial),
+            averaging.body_reduce(h_z, site.grid.spatial),
+            averaging.spatial_peak(e_z),
+            averaging.spatial_peak(h_z),
+        )
+        for dst, src in zip(maps, reduced, strict=True):
             dst[sy, sx] = np.where(take, src, dst[sy, sx])
+    return (*maps, sol)
+
+
+def _tier_ratio(site, pl, e, h, frequency_mhz):
+    """Ratio against each plan point's tier and the governing quantity; also the public ratio."""
+    r_pub, g_pub = ratios.exposure_ratio(e, h, limits.limits(site.standard, "public", frequency_mhz))
+    r_occ, g_occ = ratios.exposure_ratio(e, h, limits.limits(site.standard, "occupational", frequency_mhz))
+    occ = pl.tier == "occupational"
+    return np.where(occ, r_occ, r_pub), np.where(occ, g_occ, g_pub), r_pub
+
+
+def _worst(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Elementwise larger value; masked (NaN) in either stays masked (never compliant)."""
+    return np.where(np.isnan(a) | np.isnan(b), np.nan, np.fmax(a, b))
+
+
+def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
+    """One transmission: solve, fields on every lattice, body reduction, ratios and figures.
+
+    A beam on a rotator is assessed at every heading of ``ROTATOR_HEADINGS_DEG``; each plan
+    point keeps its worst heading (ratio), and E and H their largest values.
+    """
+    tx_notes: list[str] = []
+    headings = headings_for(site, t.antenna)
+    if len(headings) > 1:
+        tx_notes.append(
+            f"{t.antenna}: beam on a rotator, assessed at {len(headings)} headings every "
+            f"{360 // len(headings)} degrees; each point shows its worst heading"
+        )
+    best = None
+    for heading in headings:
+        model = model_for(site, t.name, tx_notes, heading_deg=heading)
+        e, h, e_pk, h_pk, sol = _body_maps(site, pl, lats, model, t.average_power_w, workers, progress)
+        ratio, gov, r_pub = _tier_ratio(site, pl, e, h, t.frequency_mhz)
+        if best is None:
+            best = [ratio, gov, r_pub, e, h, e_pk, h_pk, sol, model]
+            continue
+        worse = ratio > best[0]
+        best[1] = np.where(worse, gov, best[1])
+        for k, v in ((0, ratio), (2, r_pub), (3, e), (4, h), (5, e_pk), (6, h_pk)):
+            best[k] = _worst(best[k], v)
+    ratio, gov, r_pub, e, h, e_pk, h_pk, sol, model = best
+    for s in model.structures:
+        for n in s.notes:
+            if n not in tx_notes:
+                tx_notes.append(n)
     z = sol.feed_impedance_ohm
     if abs(z.imag) > max(z.real, 50.0):
         tx_notes.append(
@@ -264,17 +315,11 @@ def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
             "resonance; check the antenna's dimensions (the fields are computed for the power accepted, so the "
             "assessment stays valid for the model as described)"
         )
-    lim_pub = limits.limits(site.standard, "public", t.frequency_mhz)
-    lim_occ = limits.limits(site.standard, "occupational", t.frequency_mhz)
-    r_pub, g_pub = ratios.exposure_ratio(e, h, lim_pub)
-    r_occ, g_occ = ratios.exposure_ratio(e, h, lim_occ)
-    occ = pl.tier == "occupational"
-    ratio = np.where(occ, r_occ, r_pub)
-    gov = np.where(occ, g_occ, g_pub)
     areas = area_results(site, pl, ratio, gov)
     crossings = line_crossings(site, pl, ratio)
     structure = model.structures[model.active]
-    agt, gain_dbi = engine.pattern_figures(structure, t.frequency_mhz)
+    _, gain_dbi = engine.pattern_figures(structure, t.frequency_mhz)
+    lim_pub = limits.limits(site.standard, "public", t.frequency_mhz)
     ff = farfield.distance_to_limit_m(t.average_power_w, 10 ** (gain_dbi / 10), lim_pub)
     for n in tx_notes:
         if n not in notes:

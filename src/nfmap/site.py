@@ -335,11 +335,8 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
             pos = None
         if kind is None:
             continue
-        if kind == "beam" and a.get("heading_deg") == "any":
-            c.problems.append(
-                f"{c.path}: {where}.heading_deg: found 'any'; the rotator envelope is not implemented yet; "
-                "allowed: a compass bearing in degrees (assess the worst heading towards each area)"
-            )
+        if kind != "beam" and a.get("heading_deg") == "any":
+            c.bad(f"{where}.heading_deg", "any", "a compass bearing in degrees ('any' is for a beam on a rotator)")
         for req in ANTENNA_REQUIRED[kind]:
             if req not in a:
                 c.problems.append(f"{c.path}: {where}.{req}: missing; allowed: see the {kind} builder's parameters")
@@ -351,7 +348,7 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
                 if isinstance(v, bool) or not isinstance(v, int) or v < low or v > 64:
                     c.bad(f"{where}.{k}", v, f"a whole number from {low} to 64")
                     continue
-            if k in ANTENNA_NUMBERS and not (k == "heading_deg" and kind == "beam" and v == "any"):
+            if k in ANTENNA_NUMBERS and not (k == "heading_deg" and v == "any"):
                 v = c.num(a, k, where, lo=0 if k in POSITIVE else None, lo_open=k in POSITIVE)
                 if v is None:
                     continue
