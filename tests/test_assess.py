@@ -1,5 +1,6 @@
 """The assessment on sites with known answers."""
 
+import dataclasses
 import math
 import warnings
 
@@ -178,3 +179,28 @@ def test_limit_contour_on_the_map_sits_where_probe_crosses_one():
         mid = (lo + hi) / 2
         lo, hi = (mid, hi) if ratio_at(mid) > 1 else (lo, mid)
     assert min(abs(x - lo) for x in xs) <= a.plan.spacing_m
+
+
+def test_stacked_floors_are_each_assessed_at_their_own_height():
+    # a deck at 2 m over the same ground patch: both areas get results, each from its own
+    # body line (1.0 m above its floor), equal to the ratio the engine gives at that height
+    s0 = free_dipole_site()
+    doc_areas = [
+        {"name": "patch", "polygon": [[2, -2], [6, -2], [6, 2], [2, 2]], "exposure": "public"},
+        {"name": "deck", "polygon": [[2, -2], [6, -2], [6, 2], [2, 2]], "exposure": "public", "floor_m": 2.0},
+    ]
+    s = dataclasses.replace(s0, areas=tuple(site.Area(a["name"], tuple(map(tuple, a["polygon"])), a["exposure"],
+                                                      a.get("floor_m", 0.0)) for a in doc_areas))
+    a = assess.assess(s)
+    t = a.transmissions[0]
+    res = {x.name: x for x in t.areas}
+    assert res["patch"].max_ratio is not None and res["deck"].max_ratio is not None
+    assert res["patch"].max_ratio != pytest.approx(res["deck"].max_ratio)
+    lim = limits.limits("icnirp-2020", "public", F)
+    model = assess.model_for(s, "t")
+    for name, z in (("patch", 1.0), ("deck", 3.0)):
+        x, y = res[name].where_m
+        nf = engine.near_fields(model, np.array([[x, y, z]]), t.average_power_w)
+        e, h = engine.rms_magnitude(nf.e_v_per_m)[0], engine.rms_magnitude(nf.h_a_per_m)[0]
+        expected = max((e / lim.e_v_per_m[0]) ** 2, (h / lim.h_a_per_m[0]) ** 2)
+        assert res[name].max_ratio == pytest.approx(expected, rel=1e-6)

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import math
 import warnings
+from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -130,17 +131,27 @@ def place(structure: Structure, placement: Placement) -> Structure:
     return replace(structure, wires=wires)
 
 
-def segment(structure: Structure, highest_mhz: float, per_wavelength: int = 20) -> Structure:
+def segment(
+    structure: Structure,
+    highest_mhz: float,
+    per_wavelength: int = 20,
+    max_segment_m: Sequence[float | None] | None = None,
+) -> Structure:
     """Choose segment counts for the highest frequency the structure is used at.
 
     Each wire gets at least 3 segments and segments no longer than lambda/``per_wavelength``
-    (lambda/20 by default, common practice for near fields). Wires meeting at a junction are then
-    evened out so that adjacent segment lengths differ by at most a factor of 2 (common practice).
-    Wires with ``segments`` already set (> 0) are kept.
+    (lambda/20 by default, common practice for near fields), nor than its ``max_segment_m``
+    entry where one is given (finer wires where people are close: the fields within half a
+    segment of a wire are not computed). Wires meeting at a junction are then evened out so that
+    adjacent segment lengths differ by at most a factor of 2 (common practice). Wires with
+    ``segments`` already set (> 0) are kept.
     """
     wavelength_m = C0_M_PER_S / (highest_mhz * 1e6)
-    target_m = wavelength_m / per_wavelength
-    counts = [w.segments or max(3, math.ceil(w.length_m / target_m - 1e-9)) for w in structure.wires]
+    caps = list(max_segment_m) if max_segment_m is not None else [None] * len(structure.wires)
+    targets = [min(wavelength_m / per_wavelength, c or math.inf) for c in caps]
+    counts = [
+        w.segments or max(3, math.ceil(w.length_m / t - 1e-9)) for w, t in zip(structure.wires, targets, strict=True)
+    ]
     fixed = [w.segments > 0 for w in structure.wires]
     # Even out junctions: at each shared end, no segment may be more than twice its neighbour.
     ends = _junctions(structure.wires)

@@ -28,14 +28,35 @@ MAP_LEVELS = (0.1, 0.2, 0.5, 1.0, 2.0, 5.0, 10.0)
 
 
 @dataclass(frozen=True)
+class Level:
+    """One floor height people stand on: the ground (0) or a deck, balcony or upper storey.
+
+    ``tier`` holds the tier judged at each plan point ("" where nobody stands at this level);
+    ``area_index`` the index of the governing area (-1 outside this level's areas); ``window``
+    the plan rows and columns evaluated for it.
+    """
+
+    floor_m: float
+    tier: np.ndarray
+    area_index: np.ndarray
+    window: tuple[slice, slice]
+
+    @property
+    def place(self) -> np.ndarray:
+        return self.tier != ""
+
+
+@dataclass(frozen=True)
 class Plan:
-    """The plan lattice (x fastest) and what each plan point belongs to."""
+    """The plan lattice (x fastest) and its levels; ``levels[0]`` is the ground."""
 
     x_m: np.ndarray
     y_m: np.ndarray
-    tier: np.ndarray  # (ny, nx) str: public / occupational / none
-    area_index: np.ndarray  # (ny, nx) int: index of the governing area, -1 outside every area
-    floor_m: np.ndarray  # (ny, nx) floor height of the governing area
+    levels: tuple[Level, ...]
+
+    @property
+    def ground(self) -> Level:
+        return self.levels[0]
 
     @property
     def spacing_m(self) -> float:
@@ -81,13 +102,9 @@ class TransmissionResult:
     power_w: float
     average_power_w: float
     feed_impedance_ohm: complex
-    ratio: np.ndarray  # (ny, nx), tier-applied, NaN masked
-    ratio_public: np.ndarray  # (ny, nx) against the public tier everywhere
-    governing: np.ndarray  # (ny, nx) int into ratios.GOVERNING
-    e_v_per_m: np.ndarray  # (ny, nx) body-reduced rms E
-    h_a_per_m: np.ndarray
-    e_peak_v_per_m: np.ndarray  # spatial peak along the body line
-    h_peak_a_per_m: np.ndarray
+    ratio: np.ndarray  # (ny, nx) as drawn: tier-applied, worst level, NaN masked
+    ratio_public: np.ndarray  # (ny, nx) ground level against the public tier everywhere
+    levels: tuple[LevelMaps, ...]  # per level of the plan: fields (body-reduced and peak) and ratios
     areas: tuple[AreaResult, ...]
     crossings: tuple[Crossing, ...]
     power_ceiling_w: float | None
@@ -147,16 +164,29 @@ def plan(site: Site) -> Plan:
     x = x0 + d * np.arange(int(round((x1 - x0) / d)) + 1)
     y = y0 + d * np.arange(int(round((y1 - y0) / d)) + 1)
     xx, yy = np.meshgrid(x, y)
-    tier = np.full(xx.shape, "public", dtype=object)
-    index = np.full(xx.shape, -1)
-    strict = np.full(xx.shape, 99)
-    floor = np.zeros(xx.shape)
-    for i, a in enumerate(site.areas):
-        inside = shapely.contains_xy(a.shape, xx, yy) | shapely.intersects_xy(a.shape.boundary, xx, yy)
-        rank = STRICTNESS[a.exposure]
-        take = inside & ((rank < strict) | ((rank == strict) & (a.floor_m > floor)))
-        tier[take], index[take], strict[take], floor[take] = a.exposure, i, rank, a.floor_m
-    return Plan(x, y, tier, index, floor)
+    levels = []
+    for floor in sorted({0.0, *(a.floor_m for a in site.areas)}):
+        # the ground is public outside every area (conservative); a raised floor exists only in its areas
+        tier = np.full(xx.shape, "public" if floor == 0.0 else "", dtype=object)
+        index = np.full(xx.shape, -1)
+        strict = np.full(xx.shape, 99)
+        for i, a in enumerate(site.areas):
+            if a.floor_m != floor:
+                continue
+            inside = shapely.contains_xy(a.shape, xx, yy) | shapely.intersects_xy(a.shape.boundary, xx, yy)
+            rank = STRICTNESS[a.exposure]
+            take = inside & (rank < strict)
+            tier[take], index[take], strict[take] = a.exposure, i, rank
+        if floor == 0.0:
+            window = (slice(0, len(y)), slice(0, len(x)))
+        else:
+            used = index >= 0
+            if not used.any():
+                continue  # an area too small to hold a lattice point: reported as having no points
+            iy, ix = np.flatnonzero(used.any(axis=1)), np.flatnonzero(used.any(axis=0))
+            window = (slice(iy.min(), iy.max() + 1), slice(ix.min(), ix.max() + 1))
+        levels.append(Level(floor, tier, index, window))
+    return Plan(x, y, tuple(levels))
 
 
 def highest_any(site: Site) -> float:
@@ -196,26 +226,36 @@ def model_for(
     return engine.Model(tuple(structures), active, t.frequency_mhz, site.ground)
 
 
-def _lattices(site: Site, pl: Plan) -> list[tuple[float, engine.Lattice, np.ndarray]]:
-    """(floor, lattice, plan-mask) for the ground body line and every raised floor in use."""
+def _lattices(site: Site, pl: Plan) -> list[engine.Lattice]:
+    """The field lattice of each level: its window of the plan, body line raised to its floor."""
     d = pl.spacing_m
     heights = site.grid.body.heights_m()
     dz = float(heights[1] - heights[0]) if len(heights) > 1 else 1.0
     out = []
-    for floor in sorted(set(np.unique(pl.floor_m).tolist())):
-        sel = pl.floor_m == floor
-        if floor == 0.0:
-            iy, ix = np.arange(pl.shape[0]), np.arange(pl.shape[1])
-        else:
-            iy, ix = np.flatnonzero(sel.any(axis=1)), np.flatnonzero(sel.any(axis=0))
-        iy0, iy1, ix0, ix1 = iy.min(), iy.max() + 1, ix.min(), ix.max() + 1
-        lat = engine.Lattice(
-            (float(pl.x_m[ix0]), float(pl.y_m[iy0]), float(heights[0] + floor)),
-            (d, d, dz),
-            (int(ix1 - ix0), int(iy1 - iy0), len(heights)),
+    for lv in pl.levels:
+        sy, sx = lv.window
+        out.append(
+            engine.Lattice(
+                (float(pl.x_m[int(sx.start)]), float(pl.y_m[int(sy.start)]), float(heights[0] + lv.floor_m)),
+                (d, d, dz),
+                (int(sx.stop - sx.start), int(sy.stop - sy.start), len(heights)),
+            )
         )
-        out.append((floor, lat, (slice(iy0, iy1), slice(ix0, ix1))))
     return out
+
+
+@dataclass(frozen=True)
+class LevelMaps:
+    """Body-reduced fields and ratios of one level on the plan (NaN: masked; ratio 0 where nobody stands)."""
+
+    floor_m: float
+    ratio: np.ndarray
+    governing: np.ndarray
+    ratio_public: np.ndarray
+    e_v_per_m: np.ndarray
+    h_a_per_m: np.ndarray
+    e_peak_v_per_m: np.ndarray
+    h_peak_a_per_m: np.ndarray
 
 
 def assess(site: Site, jobs: int = 1, progress: Callable[[int], None] | None = None) -> Assessment:
@@ -225,13 +265,12 @@ def assess(site: Site, jobs: int = 1, progress: Callable[[int], None] | None = N
     lats = _lattices(site, pl)
     results = []
     points = 0
-    h_method = engine.default_h_method(site.ground)
     with engine.Workers(jobs) as workers:
         for t in site.transmissions:
             results.append(_one(site, pl, lats, t, workers, progress, notes))
-            points += sum(lat.size for _, lat, _ in lats) * len(headings_for(site, t.antenna))
+            points += sum(lat.size for lat in lats) * len(headings_for(site, t.antenna))
     comb = combined(site, pl, results)
-    return Assessment(site, pl, tuple(results), comb, points, h_method, tuple(notes))
+    return Assessment(site, pl, tuple(results), comb, points, engine.default_h_method(site.ground), tuple(notes))
 
 
 ROTATOR_HEADINGS_DEG = tuple(range(0, 360, 45))
@@ -243,34 +282,41 @@ def headings_for(site: Site, antenna: str) -> tuple[float | None, ...]:
     return ROTATOR_HEADINGS_DEG if spec.kind == "beam" and spec.param("heading_deg") == "any" else (None,)
 
 
-def _body_maps(site, pl, lats, model, power_w, workers, progress):
-    """Body-reduced E and H (scheme of the site) and their spatial peaks on the plan, and the solution."""
-    maps = [np.full(pl.shape, np.nan) for _ in range(4)]
+def _level_maps(site, pl, lats, model, frequency_mhz, power_w, workers, progress):
+    """Per level: fields on its lattice, body reduction, ratio against each point's tier; and the solution."""
+    out = []
     sol = None
-    for floor, lat, (sy, sx) in lats:
+    for lv, lat in zip(pl.levels, lats, strict=True):
         nf = engine.near_fields(model, lat, power_w, jobs=workers, progress=progress)
         sol = nf.solution
         nx, ny, nz = lat.shape
         e_z = engine.rms_magnitude(nf.e_v_per_m).reshape(nz, ny, nx)
         h_z = engine.rms_magnitude(nf.h_a_per_m).reshape(nz, ny, nx)
-        take = pl.floor_m[sy, sx] == floor
+        full = [np.full((len(pl.y_m), len(pl.x_m)), np.nan) for _ in range(4)]
         reduced = (
             averaging.body_reduce(e_z, site.grid.spatial),
             averaging.body_reduce(h_z, site.grid.spatial),
             averaging.spatial_peak(e_z),
             averaging.spatial_peak(h_z),
         )
-        for dst, src in zip(maps, reduced, strict=True):
-            dst[sy, sx] = np.where(take, src, dst[sy, sx])
-    return (*maps, sol)
+        for dst, src in zip(full, reduced, strict=True):
+            dst[lv.window] = src
+        e, h, e_pk, h_pk = full
+        r_pub, g_pub = ratios.exposure_ratio(e, h, limits.limits(site.standard, "public", frequency_mhz))
+        r_occ, g_occ = ratios.exposure_ratio(e, h, limits.limits(site.standard, "occupational", frequency_mhz))
+        occ = lv.tier == "occupational"
+        ratio = np.where(lv.place, np.where(occ, r_occ, r_pub), 0.0)
+        gov = np.where(occ, g_occ, g_pub)
+        out.append(LevelMaps(lv.floor_m, ratio, gov, np.where(lv.place, r_pub, 0.0), e, h, e_pk, h_pk))
+    return out, sol
 
 
-def _tier_ratio(site, pl, e, h, frequency_mhz):
-    """Ratio against each plan point's tier and the governing quantity; also the public ratio."""
-    r_pub, g_pub = ratios.exposure_ratio(e, h, limits.limits(site.standard, "public", frequency_mhz))
-    r_occ, g_occ = ratios.exposure_ratio(e, h, limits.limits(site.standard, "occupational", frequency_mhz))
-    occ = pl.tier == "occupational"
-    return np.where(occ, r_occ, r_pub), np.where(occ, g_occ, g_pub), r_pub
+def display_ratio(pl: Plan, ratios_by_level: list[np.ndarray]) -> np.ndarray:
+    """The ratio drawn on the plan: the worst level at each point (masked anywhere stays masked)."""
+    out = np.array(ratios_by_level[0], float)
+    for lv, r in zip(pl.levels[1:], ratios_by_level[1:], strict=True):
+        out = np.where(lv.place, _worst(out, r), out)
+    return out
 
 
 def _worst(a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -278,8 +324,24 @@ def _worst(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return np.where(np.isnan(a) | np.isnan(b), np.nan, np.fmax(a, b))
 
 
+def _merge_headings(a: list[LevelMaps], b: list[LevelMaps]) -> list[LevelMaps]:
+    """Worst of two headings, level by level (governing quantity from the worse one)."""
+    out = []
+    for x, y in zip(a, b, strict=True):
+        worse = y.ratio > x.ratio
+        out.append(
+            LevelMaps(
+                x.floor_m, _worst(x.ratio, y.ratio), np.where(worse, y.governing, x.governing),
+                _worst(x.ratio_public, y.ratio_public), _worst(x.e_v_per_m, y.e_v_per_m),
+                _worst(x.h_a_per_m, y.h_a_per_m), _worst(x.e_peak_v_per_m, y.e_peak_v_per_m),
+                _worst(x.h_peak_a_per_m, y.h_peak_a_per_m),
+            )
+        )
+    return out
+
+
 def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
-    """One transmission: solve, fields on every lattice, body reduction, ratios and figures.
+    """One transmission: solve, fields on every level, body reduction, ratios and figures.
 
     A beam on a rotator is assessed at every heading of ``ROTATOR_HEADINGS_DEG``; each plan
     point keeps its worst heading (ratio), and E and H their largest values.
@@ -291,19 +353,14 @@ def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
             f"{t.antenna}: beam on a rotator, assessed at {len(headings)} headings every "
             f"{360 // len(headings)} degrees; each point shows its worst heading"
         )
-    best = None
+    levels = None
     for heading in headings:
         model = model_for(site, t.name, tx_notes, heading_deg=heading)
-        e, h, e_pk, h_pk, sol = _body_maps(site, pl, lats, model, t.average_power_w, workers, progress)
-        ratio, gov, r_pub = _tier_ratio(site, pl, e, h, t.frequency_mhz)
-        if best is None:
-            best = [ratio, gov, r_pub, e, h, e_pk, h_pk, sol, model]
-            continue
-        worse = ratio > best[0]
-        best[1] = np.where(worse, gov, best[1])
-        for k, v in ((0, ratio), (2, r_pub), (3, e), (4, h), (5, e_pk), (6, h_pk)):
-            best[k] = _worst(best[k], v)
-    ratio, gov, r_pub, e, h, e_pk, h_pk, sol, model = best
+        maps_, sol = _level_maps(site, pl, lats, model, t.frequency_mhz, t.average_power_w, workers, progress)
+        levels = maps_ if levels is None else _merge_headings(levels, maps_)
+        if heading in (None, 0):
+            first_sol, first_model = sol, model
+    sol, model = first_sol, first_model
     for s in model.structures:
         for n in s.notes:
             if n not in tx_notes:
@@ -315,8 +372,9 @@ def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
             "resonance; check the antenna's dimensions (the fields are computed for the power accepted, so the "
             "assessment stays valid for the model as described)"
         )
-    areas = area_results(site, pl, ratio, gov)
-    crossings = line_crossings(site, pl, ratio)
+    ratio = display_ratio(pl, [m.ratio for m in levels])
+    areas = area_results(site, pl, [m.ratio for m in levels], [m.governing for m in levels])
+    crossings = line_crossings(site, pl, levels[0].ratio)
     structure = model.structures[model.active]
     _, gain_dbi = engine.pattern_figures(structure, t.frequency_mhz)
     lim_pub = limits.limits(site.standard, "public", t.frequency_mhz)
@@ -324,33 +382,41 @@ def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
     for n in tx_notes:
         if n not in notes:
             notes.append(n)
+    masked = sum(int((np.isnan(m.ratio) & lv.place).sum()) for m, lv in zip(levels, pl.levels, strict=True))
     return TransmissionResult(
         t.name, t.antenna, t.frequency_mhz, t.power_w, t.average_power_w, sol.feed_impedance_ohm,
-        ratio, r_pub, gov, e, h, e_pk, h_pk, areas, crossings,
-        power_ceiling_w(t.power_w, areas), model_distance_m(pl, r_pub, structure), ff, gain_dbi,
-        int(np.isnan(ratio).sum()), tuple(tx_notes),
+        ratio, levels[0].ratio_public, tuple(levels), areas, crossings,
+        power_ceiling_w(t.power_w, areas), model_distance_m(pl, levels[0].ratio_public, structure), ff, gain_dbi,
+        masked, tuple(tx_notes),
     )
 
 
-def area_results(site: Site, pl: Plan, ratio: np.ndarray, gov: np.ndarray) -> tuple[AreaResult, ...]:
-    """Per area: max ratio and where, governing quantity, exceedance area, masked points.
+def area_results(site: Site, pl: Plan, level_ratios, level_govs=None) -> tuple[AreaResult, ...]:
+    """Per area, on its own level: max ratio and where, governing quantity, exceedance area, masked points.
 
-    Plan points outside every area are reported as the area "elsewhere (public)".
+    Ground points outside every area are reported as the area "elsewhere" (public).
     """
     out = []
     cell_m2 = pl.spacing_m**2
     xx, yy = np.meshgrid(pl.x_m, pl.y_m)
-    groups = [(a.name, a.exposure, pl.area_index == i) for i, a in enumerate(site.areas)]
-    groups.append(("elsewhere", "public", pl.area_index == -1))
-    for name, tier, sel in groups:
+    by_floor = {lv.floor_m: k for k, lv in enumerate(pl.levels)}
+    groups = []
+    for i, a in enumerate(site.areas):
+        k = by_floor.get(a.floor_m)
+        groups.append((a.name, a.exposure, k, None if k is None else pl.levels[k].area_index == i))
+    groups.append(("elsewhere", "public", 0, pl.ground.area_index == -1))
+    for name, tier, k, sel in groups:
+        if k is None or not sel.any():
+            out.append(AreaResult(name, tier, None, None, None, 0.0, 0))
+            continue
+        ratio = level_ratios[k]
         vals = np.where(sel, ratio, np.nan)
         masked = int((sel & np.isnan(ratio)).sum())
         if not np.isfinite(vals).any():
             out.append(AreaResult(name, tier, None, None, None, 0.0, masked))
             continue
-        k = np.nanargmax(vals)
-        iy, ix = np.unravel_index(k, vals.shape)
-        g = int(gov[iy, ix])
+        iy, ix = np.unravel_index(np.nanargmax(vals), vals.shape)
+        g = -1 if level_govs is None else int(level_govs[k][iy, ix])
         out.append(
             AreaResult(
                 name, tier, float(vals[iy, ix]), (float(xx[iy, ix]), float(yy[iy, ix])),
@@ -434,11 +500,12 @@ def group_members(site: Site) -> list[tuple[str, ...]]:
 
 
 def combined(site: Site, pl: Plan, results: list[TransmissionResult]) -> CombinedResult:
+    """Per level: ratios summed within each group, the worst group at each point."""
     by_name = {r.name: r for r in results}
     groups = group_members(site)
-    sums = [ratios.sum_ratios([by_name[n].ratio for n in g]) for g in groups]
-    ratio = ratios.combine_groups(sums)
-    gov = np.full(ratio.shape, 0)
-    areas = area_results(site, pl, ratio, gov)
-    areas = tuple(a.__class__(a.name, a.exposure, a.max_ratio, a.where_m, None, a.exceedance_area_m2, a.masked_points) for a in areas)
-    return CombinedResult(tuple(groups), ratio, areas, line_crossings(site, pl, ratio))
+    per_level = []
+    for k in range(len(pl.levels)):
+        sums = [ratios.sum_ratios([by_name[n].levels[k].ratio for n in g]) for g in groups]
+        per_level.append(ratios.combine_groups(sums))
+    areas = area_results(site, pl, per_level)
+    return CombinedResult(tuple(groups), display_ratio(pl, per_level), areas, line_crossings(site, pl, per_level[0]))

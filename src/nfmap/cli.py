@@ -272,9 +272,8 @@ class _Null:
 def _points_total(site) -> int:
     from . import assess
 
-    pl = assess.plan(site)
-    lats = assess._lattices(site, pl)
-    return sum(lat.size for _, lat, _ in lats) * len(site.transmissions)
+    lats = assess._lattices(site, assess.plan(site))
+    return sum(lat.size for lat in lats) * sum(len(assess.headings_for(site, t.antenna)) for t in site.transmissions)
 
 
 def _write_all(a, folder: Path) -> None:
@@ -425,8 +424,7 @@ def deck_cmd(site_file, name):
     except SiteError as err:
         raise InputError(err.problems[0]) from None
     model = assess.model_for(site, t.name)
-    pl = assess.plan(site)
-    _, lat, _ = assess._lattices(site, pl)[0]
+    lat = assess._lattices(site, assess.plan(site))[0]
     comments = [f"nfmap {__version__}: {site.title}", f"transmission {t.name!r}: excitation 1 V peak; "
                 f"scale fields by sqrt({t.average_power_w:.6g} W / P_in) for the average power"]
     click.echo(engine.nec_deck(model, lat, comments), nl=False)

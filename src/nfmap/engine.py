@@ -288,7 +288,7 @@ class _Counter:
 def _grid(counter: _Counter, lattice: Lattice, kind: str, name: str) -> np.ndarray:
     (x0, y0, z0), (dx, dy, dz), (nx, ny, nz) = lattice.origin_m, lattice.step_m, lattice.shape
     try:
-        nf = counter.card(kind, (0, nx, ny, nz, float(x0), float(y0), float(z0), float(dx), float(dy), float(dz)))
+        nf = counter.card(kind, (0, int(nx), int(ny), int(nz), float(x0), float(y0), float(z0), float(dx), float(dy), float(dz)))
         out = np.column_stack([np.asarray(nf.get_field_x()), np.asarray(nf.get_field_y()), np.asarray(nf.get_field_z())])
     except (RuntimeError, AttributeError) as err:
         raise EngineError("near field", name, str(err) or "near-field card failed") from err

@@ -31,21 +31,27 @@ WIRE_COLOUR = "#c2185b"
 def draw_plan(site, ax, antennas_wires=None, label_areas=True):
     """Areas by tier, lines labelled, antennas as their wires projected on the plan."""
     drawn = []
+    labelled = set()
     for a in site.areas:
         st = TIER_STYLE[a.exposure]
         p = Polygon(a.polygon, closed=True, fill=st["hatch"] is not None, facecolor="none", hatch=st["hatch"],
                     edgecolor=st["edgecolor"], linestyle=st["linestyle"], linewidth=st["linewidth"], zorder=4)
         ax.add_patch(p)
         drawn.append(p)
-        if label_areas:
+        if label_areas and a.polygon not in labelled:
+            labelled.add(a.polygon)
+            same = [b for b in site.areas if b.polygon == a.polygon]  # stacked floors share one label
             # label inside the polygon, at the middle of its widest row near the top
             shape = a.shape
             x0, y0, x1, y1 = shape.bounds
             cy = y1 - min(0.12 * (y1 - y0), 1.5)
             row = shape.intersection(shapely.LineString([(x0, cy), (x1, cy)]))
             cx = row.centroid.x if not row.is_empty else shape.representative_point().x
-            floor = f" (floor {a.floor_m:g} m)" if a.floor_m else ""
-            ax.annotate(f"{a.name}{floor}", (cx, cy), xytext=(0, 0), textcoords="offset points", ha="center", va="center",
+            text = " / ".join(f"{b.name}" + (f" (floor {b.floor_m:g} m)" if b.floor_m else "") for b in same)
+            # wrap to the polygon's width on a 7.5 in wide figure (about 0.055 in per character)
+            chars = int(6.5 / site_span_m(site) * (x1 - x0) / 0.055)
+            text = "\n".join(textwrap.wrap(text, max(10, chars)))
+            ax.annotate(text, (cx, cy), xytext=(0, 0), textcoords="offset points", ha="center", va="center",
                         fontsize=6.5, color="#1b3a4b", zorder=6,
                         bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.7})
     for ln in site.lines:
@@ -66,6 +72,12 @@ def draw_plan(site, ax, antennas_wires=None, label_areas=True):
                     color=WIRE_COLOUR, weight="bold", zorder=9,
                     bbox={"boxstyle": "round,pad=0.1", "fc": "white", "ec": "none", "alpha": 0.75})
     return drawn
+
+
+def site_span_m(site) -> float:
+    """East-west extent of the site's areas and lines [m] (for sizing labels)."""
+    xs = [p[0] for a in site.areas for p in a.polygon] + [p[0] for ln in site.lines for p in ln.points]
+    return max(max(xs) - min(xs), 1.0) if xs else 10.0
 
 
 def draw_furniture(ax, north_deg: float, extent):
@@ -130,25 +142,47 @@ def draw_marks(ax, crossings, worst):
 def map_figure(assessment, ratio, title: str, crossings, areas, caption: str, structures) -> Figure:
     """One complete map figure (not attached to pyplot)."""
     site, pl = assessment.site, assessment.plan
-    fig = Figure(figsize=(7.5, 7.5 * (pl.y_m[-1] - pl.y_m[0] + 6) / (pl.x_m[-1] - pl.x_m[0] + 10)), layout="constrained")
-    ax = fig.add_subplot()
+    fig, ax, foot = _plan_figure(pl)
     filled, *_ = draw_ratio(pl, ratio, ax)
     draw_plan(site, ax, structures)
-    worst = [(a.name, a.where_m, a.max_ratio) for a in areas if a.exposure == "public" and a.where_m and a.max_ratio]
+    # worst point of each public area; the unnamed rest of the plan only where it matters
+    worst = [(a.name, a.where_m, a.max_ratio) for a in areas
+             if a.exposure == "public" and a.where_m and a.max_ratio and (a.name != "elsewhere" or a.max_ratio >= 0.5)]
     draw_marks(ax, crossings, worst)
     frame(ax, site, pl)
     ax.set_title(f"{site.title}\n{title}", fontsize=10)
-    cb = fig.colorbar(filled, ax=ax, shrink=0.8, ticks=MAP_LEVELS)
+    cax = ax.inset_axes([1.03, 0.1, 0.035, 0.8])  # glued to the plan, whatever its aspect
+    cb = fig.colorbar(filled, cax=cax, ticks=MAP_LEVELS)
     cb.ax.set_yticklabels([f"{v:g}" for v in MAP_LEVELS])
     cb.set_label("exposure ratio (1 = at the limit)")
     cb.ax.axhline(1.0, color="black", linewidth=2.5)
-    add_legend(ax)
-    fig.get_layout_engine().set(rect=(0, 0.045, 1, 0.955))
-    fig.text(0.01, 0.004, "\n".join(textwrap.wrap(caption, 150)), fontsize=6, ha="left", va="bottom")
+    add_legend(foot)
+    _caption(foot, caption)
     return fig
 
 
-def add_legend(ax, fields: bool = True):
+FOOT_IN = 1.25  # legend and caption band under the plan [in]
+
+
+def _plan_figure(pl):
+    """A figure shaped to the plan: the plan axes and, below, a band for the legend and caption."""
+    aspect = (pl.y_m[-1] - pl.y_m[0] + 6) / (pl.x_m[-1] - pl.x_m[0] + 10)
+    plan_in = min(max(7.5 * aspect, 3.5), 10.0)
+    fig = Figure(figsize=(7.5, plan_in + FOOT_IN), layout="constrained")
+    grid = fig.add_gridspec(2, 1, height_ratios=[plan_in, FOOT_IN])
+    ax = fig.add_subplot(grid[0])
+    foot = fig.add_subplot(grid[1])
+    foot.set_axis_off()
+    return fig, ax, foot
+
+
+def _caption(foot, text: str) -> None:
+    """The caption at the bottom of the band."""
+    foot.text(0.0, 0.0, "\n".join(textwrap.wrap(text, 165)), fontsize=6, color="#333333", ha="left", va="bottom",
+              transform=foot.transAxes)
+
+
+def add_legend(foot, fields: bool = True):
     """What the line styles and marks mean (readable in greyscale)."""
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
@@ -169,7 +203,7 @@ def add_legend(ax, fields: bool = True):
             Line2D([], [], color="#ff6f00", linewidth=4, label="line crossed by limit region (numbered)"),
             Line2D([], [], color="#ff6f00", linewidth=4, linestyle=(0, (1.5, 1)), label="line crossed by masked zone"),
         ]
-    return ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.0, -0.02), fontsize=6, frameon=False, ncols=1)
+    return foot.legend(handles=handles, loc="upper center", fontsize=6.5, frameon=False, ncols=3)
 
 
 def frame(ax, site, pl) -> None:
@@ -193,6 +227,7 @@ def caption_text(assessment) -> str:
         f"{limits.STANDARD_TITLES[s.standard]}; tier per area (public outside every area); "
         f"body line {s.grid.body.from_m:g}-{s.grid.body.to_m:g} m, {s.grid.body.points} points, {s.grid.spatial} of E^2 and H^2; "
         f"time-averaged power (duty x transmit fraction x feedline loss); hatched: too close to a wire for the model; "
+        f"{'where floors are stacked the worst level is drawn; ' if len(assessment.plan.levels) > 1 else ''}"
         f"nfmap {__version__}, {dt.date.today().isoformat()}"
     )
 
@@ -209,10 +244,9 @@ def save_plan(site, path) -> None:
     from .assess import plan
 
     pl = plan(site)
-    fig = Figure(figsize=(7.5, 7.5 * (pl.y_m[-1] - pl.y_m[0] + 6) / (pl.x_m[-1] - pl.x_m[0] + 10)), layout="constrained")
-    ax = fig.add_subplot()
+    fig, ax, foot = _plan_figure(pl)
     draw_plan(site, ax, wires_of(site))
     frame(ax, site, pl)
     ax.set_title(f"{site.title}\nplan and antennas (no fields computed)", fontsize=10)
-    add_legend(ax, fields=False)
+    add_legend(foot, fields=False)
     fig.savefig(path, dpi=170)

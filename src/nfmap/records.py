@@ -151,15 +151,22 @@ def geojson_doc(a: Assessment) -> dict:
 
 
 def fields_arrays(a: Assessment) -> dict[str, np.ndarray]:
+    """Arrays for fields.npz: plan axes; per level (k) its floor and tiers; per transmission (i) and
+    level the body-reduced rms E [V/m] and H [A/m], their spatial peaks and the ratio; the drawn
+    (worst-level) ratio per transmission and combined. NaN = masked."""
     out = {"x_m": a.plan.x_m, "y_m": a.plan.y_m, "body_heights_m": a.site.grid.body.heights_m(),
-           "floor_m": a.plan.floor_m, "tier": a.plan.tier.astype(str)}
+           "level_floor_m": np.array([lv.floor_m for lv in a.plan.levels])}
+    for k, lv in enumerate(a.plan.levels):
+        out[f"level{k}_tier"] = lv.tier.astype(str)
     for i, t in enumerate(a.transmissions):
         out[f"t{i}_name"] = np.array(t.name)
-        out[f"t{i}_e_v_per_m"] = t.e_v_per_m
-        out[f"t{i}_h_a_per_m"] = t.h_a_per_m
-        out[f"t{i}_e_peak_v_per_m"] = t.e_peak_v_per_m
-        out[f"t{i}_h_peak_a_per_m"] = t.h_peak_a_per_m
         out[f"t{i}_ratio"] = t.ratio
+        for k, m in enumerate(t.levels):
+            out[f"t{i}_level{k}_e_v_per_m"] = m.e_v_per_m
+            out[f"t{i}_level{k}_h_a_per_m"] = m.h_a_per_m
+            out[f"t{i}_level{k}_e_peak_v_per_m"] = m.e_peak_v_per_m
+            out[f"t{i}_level{k}_h_peak_a_per_m"] = m.h_peak_a_per_m
+            out[f"t{i}_level{k}_ratio"] = m.ratio
     out["combined_ratio"] = a.combined.ratio
     return out
 

@@ -301,7 +301,7 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
     _unique(c, [a.name for a in area_list], "area")
     for i, a in enumerate(area_list):
         for b in area_list[i + 1 :]:
-            if a.exposure != b.exposure and a.shape.intersection(b.shape).area > 1e-9:
+            if a.floor_m == b.floor_m and a.exposure != b.exposure and a.shape.intersection(b.shape).area > 1e-9:
                 strict = a if STRICTNESS[a.exposure] < STRICTNESS[b.exposure] else b
                 notes.append(
                     f"areas {a.name!r} ({a.exposure}) and {b.name!r} ({b.exposure}) overlap; "
@@ -456,7 +456,8 @@ def build(
 
     A fed antenna gets segments of at most lambda/20 at the higher of ``segment_mhz`` and its own
     highest transmission frequency; a passive one (another antenna's model) lambda/10 at
-    ``segment_mhz`` (the NEC-2 rule), or its own segmentation if that is finer.
+    ``segment_mhz`` (the NEC-2 rule). Either way wires near people get short segments
+    (:func:`near_people_caps`).
     """
     kw = dict(spec.params)
     if spec.kind == "vertical":
@@ -468,8 +469,46 @@ def build(
         kw["heading_deg"] = heading_deg or 0.0
     structure = antennas.BUILDERS[spec.kind](spec.name, spec.position_m, **kw)
     own_mhz = highest_frequency_mhz(site, spec.name)
+    caps = near_people_caps(site, structure)
     if passive:
-        own = antennas.segment(structure, own_mhz)
-        coarse = antennas.segment(structure, segment_mhz, per_wavelength=10)
-        return own if own.segment_count >= coarse.segment_count else coarse
-    return antennas.segment(structure, max(segment_mhz, own_mhz))
+        return antennas.segment(structure, segment_mhz, per_wavelength=10, max_segment_m=caps)
+    return antennas.segment(structure, max(segment_mhz, own_mhz), max_segment_m=caps)
+
+
+NEAR_PEOPLE_SEGMENT_M = 0.5  # segment cap for wires near a body line: masks shrink to 0.25 m
+NEAR_PEOPLE_BAND_M = 1.0  # "near": within this height of a body line's span on any floor
+
+
+def near_people_caps(site: Site, structure: Structure) -> list[float | None]:
+    """Per wire, ``NEAR_PEOPLE_SEGMENT_M`` where the wire passes near a place people can stand,
+    else None.
+
+    Points within half a segment of a wire are masked (the model gives no reliable field there),
+    so wires near people get short segments, shrinking the masked zone to a quarter of a metre.
+    "Near": the wire comes within ``NEAR_PEOPLE_BAND_M`` of the heights of a body line on some
+    floor, and within a sixth of its own length (half of its longest possible segment: 3 at least) of an
+    accessible place on that floor in plan (the ground is accessible outside every area with
+    ``exposure = "none"``).
+    """
+    b = site.grid.body
+    floors = sorted({0.0, *(a.floor_m for a in site.areas)})
+    places = {}
+    for f in floors:
+        open_ = [a.shape for a in site.areas if a.floor_m == f and a.exposure != "none"]
+        if f == 0.0:
+            closed = [a.shape for a in site.areas if a.floor_m == f and a.exposure == "none"]
+            world = shapely.box(-1e6, -1e6, 1e6, 1e6)
+            places[f] = shapely.union_all([world.difference(shapely.union_all(closed)) if closed else world, *open_])
+        else:
+            places[f] = shapely.union_all(open_) if open_ else None
+    caps = []
+    for w in structure.wires:
+        lo, hi = sorted((w.start_m[2], w.end_m[2]))
+        track = shapely.LineString([w.start_m[:2], w.end_m[:2]]) if w.start_m[:2] != w.end_m[:2] else shapely.Point(w.start_m[:2])
+        near = False
+        for f in floors:
+            bottom, top = f + b.from_m - NEAR_PEOPLE_BAND_M, f + b.to_m + NEAR_PEOPLE_BAND_M
+            if lo <= top and hi >= bottom and places[f] is not None:
+                near |= track.distance(places[f]) <= max(w.length_m / 6, 10 * w.radius_m)
+        caps.append(NEAR_PEOPLE_SEGMENT_M if near else None)
+    return caps
