@@ -1,0 +1,101 @@
+"""The record: results.json, fields.npz, exceedance.geojson, the maps and report.pdf."""
+
+import json
+import subprocess
+import sys
+from importlib import resources
+from pathlib import Path
+
+import numpy as np
+import pytest
+from pypdf import PdfReader
+
+from nfmap import assess, records, report
+
+from .test_assess import free_dipole_site
+
+EXAMPLES = sorted(p.name for p in resources.files("nfmap").joinpath("examples").iterdir() if p.name.endswith(".toml"))
+
+
+@pytest.fixture(scope="module")
+def written(tmp_path_factory):
+    s = free_dipole_site(power_w=3000, mode="carrier", fraction=1.0, loss_db=0.0)
+    a = assess.assess(s)
+    out = tmp_path_factory.mktemp("rec") / "out"
+
+    def write(folder):
+        records.write_data(a, folder)
+        report.write_maps_and_report(a, folder)
+
+    records.write_folder(out, False, write)
+    return a, out
+
+
+def test_results_json_has_the_interface_schema(written):
+    a, out = written
+    doc = json.loads((out / "results.json").read_text())
+    for key in ("tool_version", "site_sha256", "standard", "transmissions", "combined", "warnings"):
+        assert key in doc
+    t = doc["transmissions"][0]
+    for key in ("name", "frequency_mhz", "feed_impedance_ohm", "average_power_w", "max_ratio_by_area",
+                "exceedance_area_m2_by_area", "crossings", "power_ceiling_w", "far_field_distance_m", "model_distance_m"):
+        assert key in t
+    assert t["crossings"] and {"line", "from_m", "to_m", "length_m"} <= set(t["crossings"][0])
+    assert t["max_ratio_by_area"]["field"] == pytest.approx(a.transmissions[0].areas[0].max_ratio, rel=1e-5)
+
+
+def test_geojson_polygons_per_transmission_and_level(written):
+    _, out = written
+    doc = json.loads((out / "exceedance.geojson").read_text())
+    assert doc["type"] == "FeatureCollection"
+    props = {(f["properties"]["name"], f["properties"]["level"]) for f in doc["features"]}
+    assert ("t", 1.0) in props and ("t", 0.5) in props and ("combined", 1.0) in props
+    assert all(f["geometry"]["type"] in ("Polygon", "MultiPolygon") for f in doc["features"])
+
+
+def test_fields_npz_holds_lattice_fields_and_ratios(written):
+    a, out = written
+    with np.load(out / "fields.npz") as z:
+        assert z["t0_level0_e_v_per_m"].shape == (len(z["y_m"]), len(z["x_m"]))
+        np.testing.assert_array_equal(z["t0_ratio"], a.transmissions[0].ratio)
+        assert str(z["t0_name"]) == "t"
+
+
+def test_report_pages_and_texts(written):
+    a, out = written
+    reader = PdfReader(out / "report.pdf")
+    text = "\n".join(p.extract_text() for p in reader.pages)
+    for needle in ("RF exposure assessment", "Verdict", "OVER THE LIMIT", "Cautions", "not a measurement",
+                   "not a certificate", "Keep people away", "Station and operating inputs", "Transmission: t",
+                   "Highest power within limits", "Far-field estimate", "Combined", "Assumptions and limitations",
+                   "References", a.site.sha256):
+        assert needle in text, needle
+    # one page per map (each transmission and the combined one) after the text pages
+    assert len(reader.pages) >= 1 + len(a.transmissions) + 1
+    assert (out / report.map_name("t")).stat().st_size > 20_000 and (out / "map-combined.png").exists()
+
+
+def test_existing_record_is_never_replaced_without_force(written):
+    _, out = written
+    with pytest.raises(records.OutputExistsError):
+        records.write_folder(out, False, lambda folder: None)
+    before = (out / "results.json").read_text()
+    with pytest.raises(RuntimeError):
+        records.write_folder(out, True, lambda folder: (_ for _ in ()).throw(RuntimeError("disk full")))
+    assert (out / "results.json").read_text() == before  # a failed write leaves the old record
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("example", EXAMPLES)
+def test_every_example_runs_and_renders(example, tmp_path):
+    path = Path(resources.files("nfmap").joinpath("examples", example))
+    r = subprocess.run([sys.executable, "-m", "nfmap", "run", str(path), "-o", str(tmp_path / "o"), "--quiet"],
+                       capture_output=True, text=True, timeout=900)
+    assert r.returncode in (0, 1), r.stderr
+    doc = json.loads((tmp_path / "o" / "results.json").read_text())
+    text = "\n".join(p.extract_text() for p in PdfReader(tmp_path / "o" / "report.pdf").pages)
+    for t in doc["transmissions"]:
+        assert (tmp_path / "o" / report.map_name(t["name"])).exists()
+        assert f"Transmission: {t['name']}" in text
+    for area in doc["areas"]:
+        assert area["name"] in text
