@@ -57,3 +57,30 @@ def test_demo_writes_every_output(tmp_path):
     text = "".join(p.extract_text() for p in PdfReader(out / "report.pdf").pages)
     for needle in ("Verdict", "Cautions", "not a measurement", "Assumptions and limitations", "References"):
         assert needle in text
+
+
+def test_engine_failure_exits_3_with_the_stage(monkeypatch, tmp_path):
+    from click.testing import CliRunner
+
+    from nfmap import cli, engine
+
+    def broken(model, *a, **k):
+        raise engine.EngineError("near field", model.name, "Unknown exception")
+
+    monkeypatch.setattr(engine, "near_fields", broken)
+    r = CliRunner().invoke(cli.main, ["run", DEMO, "-o", str(tmp_path / "o"), "--quiet"])
+    assert r.exit_code == 3
+    assert "near field stage" in r.output and not (tmp_path / "o").exists()
+
+
+def test_probe_json_schema():
+    r = nfmap("probe", DEMO, "--at", "9,12,1.5", "--at", "5.5,24.5,0.1", "--transmission", "20 m CW", "--json")
+    doc = json.loads(r.stdout)
+    assert r.returncode == 0
+    assert set(doc["transmissions"][0]) == {"name", "frequency_mhz", "feed_impedance_ohm", "input_power_w",
+                                            "average_power_w"}
+    p0, p1 = doc["points"]
+    assert set(p0) == {"x_m", "y_m", "z_m", "transmission", "e_rms_v_per_m", "h_rms_a_per_m", "ratio", "exposure",
+                       "masked"}
+    assert not p0["masked"] and p0["ratio"] > 0 and p0["exposure"] == "public"
+    assert p1["masked"] and p1["e_rms_v_per_m"] is None  # on the vertical's base
