@@ -1,10 +1,11 @@
 """Site to results: fields on the lattice, time and body averaging, ratios, area verdicts.
 
-One engine solve per transmission (the other antennas passive), near E and H on the lattice at
-the average power, spatial averaging along the body line, the exposure ratio against the tier
-of the area each plan point lies in (``public`` outside every area), then per area and line
-figures, the power ceiling, the model and far-field distances, and the combined assessment
-over groups.
+One engine solve per transmission (the other antennas passive; eight headings for a beam on a
+rotator), near E and H at the average power on one lattice per floor level (the ground, and each
+raised floor of the site's areas), spatial averaging along the body line standing on that floor,
+the exposure ratio against the tier of the area each point lies in (``public`` on the ground
+outside every area), then per area (on its own floor) and per line the figures, the power
+ceiling, the model and far-field distances, and the combined assessment over groups.
 """
 
 from __future__ import annotations
