@@ -58,10 +58,11 @@ def main():
 
 def memory(base, jobs):
     """Peak memory of one transmission on a lattice of about 200 x 200 plan points x 9 heights."""
-    pl = assess.plan(base)
+    s = dataclasses.replace(base, transmissions=base.transmissions[:1], areas=base.areas[:-2])  # one level
+    pl = assess.plan(s)
     span = max(pl.x_m[-1] - pl.x_m[0], pl.y_m[-1] - pl.y_m[0])
     grid = dataclasses.replace(base.grid, spacing_m=span / 199, body=dataclasses.replace(base.grid.body, points=9))
-    s = dataclasses.replace(base, grid=grid, transmissions=base.transmissions[:1], areas=base.areas[:-2])
+    s = dataclasses.replace(s, grid=grid)
     pl = assess.plan(s)
     t = time.perf_counter()
     a = assess.assess(s, jobs=jobs)
