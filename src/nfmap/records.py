@@ -48,6 +48,20 @@ def _area_dict(areas: tuple[AreaResult, ...], attr: str) -> dict:
     return {a.name: _num(getattr(a, attr)) for a in areas}
 
 
+def _area_figures(areas: tuple[AreaResult, ...], crossings) -> dict:
+    """The per-area figures and crossings shared by each transmission and the combined case."""
+    return {
+        "max_ratio_by_area": _area_dict(areas, "max_ratio"),
+        "worst_point_m_by_area": {x.name: x.where_m for x in areas},
+        "exceedance_area_m2_by_area": _area_dict(areas, "exceedance_area_m2"),
+        "masked_points_by_area": _area_dict(areas, "masked_points"),
+        "crossings": [
+            {"line": c.line, "from_m": list(c.from_m), "to_m": list(c.to_m), "length_m": c.length_m, "masked": c.masked}
+            for c in crossings
+        ],
+    }
+
+
 def results_doc(a: Assessment) -> dict:
     """Every figure of the report, machine-readable."""
     site = a.site
@@ -67,16 +81,8 @@ def results_doc(a: Assessment) -> dict:
                 "group": spec.group,
                 "feed_impedance_ohm": [_num(t.feed_impedance_ohm.real), _num(t.feed_impedance_ohm.imag)],
                 "average_power_w": _num(t.average_power_w),
-                "max_ratio_by_area": _area_dict(t.areas, "max_ratio"),
-                "worst_point_m_by_area": {x.name: x.where_m for x in t.areas},
+                **_area_figures(t.areas, t.crossings),
                 "governing_by_area": _area_dict(t.areas, "governing"),
-                "exceedance_area_m2_by_area": _area_dict(t.areas, "exceedance_area_m2"),
-                "masked_points_by_area": _area_dict(t.areas, "masked_points"),
-                "crossings": [
-                    {"line": c.line, "from_m": list(c.from_m), "to_m": list(c.to_m), "length_m": c.length_m,
-                     "masked": c.masked}
-                    for c in t.crossings
-                ],
                 "power_ceiling_w": _num(t.power_ceiling_w),
                 "power_ceiling_unlimited": t.power_ceiling_w is not None and math.isinf(t.power_ceiling_w),
                 "far_field_distance_m": _num(t.far_field_distance_m),
@@ -109,15 +115,7 @@ def results_doc(a: Assessment) -> dict:
         "transmissions": txs,
         "combined": {
             "groups": [list(g) for g in c.groups],
-            "max_ratio_by_area": _area_dict(c.areas, "max_ratio"),
-            "worst_point_m_by_area": {x.name: x.where_m for x in c.areas},
-            "exceedance_area_m2_by_area": _area_dict(c.areas, "exceedance_area_m2"),
-            "masked_points_by_area": _area_dict(c.areas, "masked_points"),
-            "crossings": [
-                {"line": x.line, "from_m": list(x.from_m), "to_m": list(x.to_m), "length_m": x.length_m,
-                 "masked": x.masked}
-                for x in c.crossings
-            ],
+            **_area_figures(c.areas, c.crossings),
         },
         "over_limit": a.over,
         "warnings": list(a.warnings),
