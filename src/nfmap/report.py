@@ -213,8 +213,8 @@ def _crossing_lines(pg, crossings) -> None:
 def _ceiling(t) -> str:
     if t.power_ceiling_w is None or math.isinf(t.power_ceiling_w):
         return "not limited by any accessible area on the lattice"
-    text = f"{t.power_ceiling_w:.0f} W PEP with the same mode and habits"
-    if t.masked_points:
+    text = f"{t.power_ceiling_w:.0f} W PEP with the same mode and habits (an exposure figure: the licence limit still applies)"
+    if any(a.masked_points for a in t.areas if a.exposure != "none"):
         text += " (points too close to a wire left out: keep people off those zones)"
     return text
 
