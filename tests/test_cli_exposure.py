@@ -15,10 +15,16 @@ def test_limits_json_for_each_standard():
     out = json.loads(nfmap("limits", "--standard", "fcc-1310", "--exposure", "public", "--mhz", "14.2", "--json").stdout)
     assert out[0]["e_v_per_m"] == pytest.approx(824 / 14.2) and out[0]["s_w_per_m2"] is None
     assert out[0]["averaging_min"] == 30
+    # 47 CFR 1.1310 Table 1 (B), read in reproductions of the CFR: 180/f^2 mW/cm^2 plane-wave equivalent
+    # = 1800/f^2 W/m^2, shown but not applied
+    assert out[0]["s_plane_wave_equivalent_w_per_m2"] == pytest.approx(1800 / 14.2**2)
+    assert [r["check"] for r in out] == ["whole-body"]  # no stimulation or envelope rule in the FCC rule
     for std in ("icnirp-2020", "icnirp-1998"):
         doc = json.loads(nfmap("limits", "--standard", std, "--mhz", "14.2", "--json").stdout)
         assert set(doc[0]) == {"standard", "exposure", "frequency_mhz", "e_v_per_m", "h_a_per_m", "s_w_per_m2",
-                               "averaging_min"}
+                               "averaging_min", "check", "check_title", "envelope_peak",
+                               "s_plane_wave_equivalent_w_per_m2"}
+        assert doc[0]["check"] == "whole-body"
     bands = json.loads(nfmap("limits", "--standard", "icnirp-2020", "--json").stdout)
     assert bands[0]["from_mhz"] == 0.1 and "f^0.7" in bands[0]["e"]
 

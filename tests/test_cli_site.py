@@ -78,9 +78,10 @@ def test_probe_json_schema():
     doc = json.loads(r.stdout)
     assert r.returncode == 0
     assert set(doc["transmissions"][0]) == {"name", "frequency_mhz", "feed_impedance_ohm", "input_power_w",
-                                            "average_power_w"}
+                                            "average_power_w", "envelope_power_w"}
     p0, p1 = doc["points"]
     assert set(p0) == {"x_m", "y_m", "z_m", "transmission", "e_rms_v_per_m", "h_rms_a_per_m", "ratio", "exposure",
-                       "masked"}
+                       "masked", "check", "ratio_by_check"}
+    assert p0["ratio"] == max(p0["ratio_by_check"].values()) and p0["check"] in ("whole-body", "local")
     assert not p0["masked"] and p0["ratio"] > 0 and p0["exposure"] == "public"
     assert p1["masked"] and p1["e_rms_v_per_m"] is None  # on the vertical's base

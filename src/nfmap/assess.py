@@ -22,7 +22,7 @@ import shapely
 import antennas
 
 from . import engine
-from .exposure import averaging, farfield, limits, ratios
+from .exposure import averaging, checks, farfield, ratios
 from .site import STRICTNESS, Site, build
 
 MAP_LEVELS = (0.1, 0.2, 0.5, 1.0, 2.0, 5.0, 10.0)
@@ -70,6 +70,9 @@ class Plan:
 
 @dataclass(frozen=True)
 class AreaResult:
+    """Figures of one area on its own floor: the worst ratio over every check of the standard, where,
+    the governing quantity (E, H, S) and check, and the worst ratio of each check (``by_check``)."""
+
     name: str
     exposure: str
     max_ratio: float | None
@@ -77,6 +80,8 @@ class AreaResult:
     governing: str | None
     exceedance_area_m2: float
     masked_points: int
+    check: str | None = None
+    by_check: tuple[tuple[str, float | None], ...] = ()
 
     @property
     def over(self) -> bool:
@@ -96,6 +101,48 @@ class Crossing:
 
 
 @dataclass(frozen=True)
+class Judged:
+    """Ratios of one level against every check of the standard, each point against its own tier.
+
+    ``ratio`` is the largest check at each point (0 where nobody stands, NaN masked); ``check``
+    the index into ``checks`` of the check giving it (-1 where none); ``governing`` the index
+    into ``ratios.GOVERNING`` of the quantity (-1 where unknown); ``by_check`` each check's ratio.
+    """
+
+    checks: tuple[str, ...]
+    ratio: np.ndarray
+    check: np.ndarray
+    governing: np.ndarray
+    by_check: dict[str, np.ndarray]
+    governing_by_check: dict[str, np.ndarray]
+
+
+def judge(by_check: dict[str, np.ndarray], governing: dict[str, np.ndarray] | None = None) -> Judged:
+    """Stack per-check ratio maps into a :class:`Judged` (NaN in any check stays NaN)."""
+    names = tuple(by_check)
+    stack = np.stack([by_check[n] for n in names])
+    masked = np.isnan(stack).any(axis=0)
+    best = np.argmax(np.where(np.isnan(stack), -np.inf, stack), axis=0)
+    ratio = np.where(masked, np.nan, np.take_along_axis(stack, best[None], axis=0)[0])
+    governing = governing or {n: np.full(ratio.shape, -1) for n in names}
+    gstack = np.stack([governing[n] for n in names])
+    gov = np.take_along_axis(gstack, best[None], axis=0)[0]
+    return Judged(names, ratio, np.where(masked, -1, best), np.where(masked, -1, gov), dict(by_check), dict(governing))
+
+
+@dataclass(frozen=True)
+class GroupResult:
+    """Transmissions that run at the same time: ``power_scale`` is the common factor on all the
+    members' powers that puts the worst combined point of the accessible areas at the limit."""
+
+    name: str
+    members: tuple[str, ...]
+    power_scale: float | None
+    worst_area: str | None
+    worst_check: str | None
+
+
+@dataclass(frozen=True)
 class TransmissionResult:
     name: str
     antenna: str
@@ -103,8 +150,8 @@ class TransmissionResult:
     power_w: float
     average_power_w: float
     feed_impedance_ohm: complex
-    ratio: np.ndarray  # (ny, nx) as drawn: tier-applied, worst level, NaN masked
-    ratio_public: np.ndarray  # (ny, nx) ground level against the public tier everywhere
+    ratio: np.ndarray  # (ny, nx) as drawn: worst check, tier-applied, worst level, NaN masked
+    ratio_public: np.ndarray  # (ny, nx) ground level, whole-body against the public tier
     levels: tuple[LevelMaps, ...]  # per level of the plan: fields (body-reduced and peak) and ratios
     areas: tuple[AreaResult, ...]
     crossings: tuple[Crossing, ...]
@@ -114,6 +161,14 @@ class TransmissionResult:
     gain_dbi: float
     masked_points: int
     warnings: tuple[str, ...] = field(default=())
+    checks: tuple[str, ...] = ()  # ids of the checks applied (exposure.checks)
+
+    @property
+    def governing_check(self) -> str | None:
+        """The check of the worst accessible area (the one that sets the power ceiling)."""
+        worst = max((a for a in self.areas if a.exposure != "none" and a.max_ratio is not None),
+                    key=lambda a: a.max_ratio, default=None)
+        return worst.check if worst else None
 
 
 @dataclass(frozen=True)
@@ -122,6 +177,7 @@ class CombinedResult:
     ratio: np.ndarray
     areas: tuple[AreaResult, ...]
     crossings: tuple[Crossing, ...]
+    group_results: tuple[GroupResult, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -247,16 +303,29 @@ def _lattices(site: Site, pl: Plan) -> list[engine.Lattice]:
 
 @dataclass(frozen=True)
 class LevelMaps:
-    """Body-reduced fields and ratios of one level on the plan (NaN: masked; ratio 0 where nobody stands)."""
+    """Fields and ratios of one level on the plan (NaN: masked; ratio 0 where nobody stands).
+
+    Fields are rms at ``power_w``, the power accepted at the envelope peak (PEP x feedline loss):
+    ``e_v_per_m`` / ``h_a_per_m`` reduced along the body line by the site's scheme, ``e_peak_*``
+    the spatial peak along it. Each check scales them to its own time base (``judged``).
+    """
 
     floor_m: float
-    ratio: np.ndarray
-    governing: np.ndarray
-    ratio_public: np.ndarray
+    power_w: float
+    judged: Judged
+    ratio_public: np.ndarray  # whole-body against the public tier where people stand
     e_v_per_m: np.ndarray
     h_a_per_m: np.ndarray
     e_peak_v_per_m: np.ndarray
     h_peak_a_per_m: np.ndarray
+
+    @property
+    def ratio(self) -> np.ndarray:
+        return self.judged.ratio
+
+    @property
+    def governing(self) -> np.ndarray:
+        return self.judged.governing
 
 
 def assess(site: Site, jobs: int = 1, progress: Callable[[int], None] | None = None) -> Assessment:
@@ -283,12 +352,13 @@ def headings_for(site: Site, antenna: str) -> tuple[float | None, ...]:
     return ROTATOR_HEADINGS_DEG if spec.kind == "beam" and spec.param("heading_deg") == "any" else (None,)
 
 
-def _level_maps(site, pl, lats, model, frequency_mhz, power_w, workers, progress):
-    """Per level: fields on its lattice, body reduction, ratio against each point's tier; and the solution."""
+def _level_maps(site, pl, lats, model, t, workers, progress):
+    """Per level: fields on its lattice at the envelope power, body reduction, every check's ratio
+    against each point's tier; and the solution."""
     out = []
     sol = None
     for lv, lat in zip(pl.levels, lats, strict=True):
-        nf = engine.near_fields(model, lat, power_w, jobs=workers, progress=progress)
+        nf = engine.near_fields(model, lat, t.envelope_power_w, jobs=workers, progress=progress)
         sol = nf.solution
         nx, ny, nz = lat.shape
         e_z = engine.rms_magnitude(nf.e_v_per_m).reshape(nz, ny, nx)
@@ -303,13 +373,33 @@ def _level_maps(site, pl, lats, model, frequency_mhz, power_w, workers, progress
         for dst, src in zip(full, reduced, strict=True):
             dst[lv.window] = src
         e, h, e_pk, h_pk = full
-        r_pub, g_pub = ratios.exposure_ratio(e, h, limits.limits(site.standard, "public", frequency_mhz))
-        r_occ, g_occ = ratios.exposure_ratio(e, h, limits.limits(site.standard, "occupational", frequency_mhz))
-        occ = lv.tier == "occupational"
-        ratio = np.where(lv.place, np.where(occ, r_occ, r_pub), 0.0)
-        gov = np.where(occ, g_occ, g_pub)
-        out.append(LevelMaps(lv.floor_m, ratio, gov, np.where(lv.place, r_pub, 0.0), e, h, e_pk, h_pk))
+        judged, r_pub = judge_level(site, lv, t, e, h, e_pk, h_pk)
+        out.append(LevelMaps(lv.floor_m, t.envelope_power_w, judged, r_pub, e, h, e_pk, h_pk))
     return out, sol
+
+
+def judge_level(site: Site, lv: Level, t, e, h, e_pk, h_pk) -> tuple[Judged, np.ndarray]:
+    """Every check of the site's standard on one level's fields at the envelope power.
+
+    Each check takes the body-reduced or the peak fields, as it says, and its own time base
+    (``Transmission.power_factor``); each point is judged against its own tier ("none" and the
+    ground outside every area against public). Returns the judged level and the whole-body ratio
+    against the public tier where people stand.
+    """
+    occ = lv.tier == "occupational"
+    by_check, gov_by = {}, {}
+    r_pub_whole = None
+    for c in checks.checks_for(site.standard, t.frequency_mhz):
+        ef, hf = (e_pk, h_pk) if c.spatial == "peak" else (e, h)
+        per = {}
+        for tier in ("public", "occupational"):
+            r, g = ratios.exposure_ratio(ef, hf, checks.check_limits(c, tier, t.frequency_mhz))
+            per[tier] = (r * t.power_factor(c, tier), g)
+        by_check[c.id] = np.where(lv.place, np.where(occ, per["occupational"][0], per["public"][0]), 0.0)
+        gov_by[c.id] = np.where(occ, per["occupational"][1], per["public"][1])
+        if c.id == "whole-body":
+            r_pub_whole = np.where(lv.place, per["public"][0], 0.0)
+    return judge(by_check, gov_by), r_pub_whole
 
 
 def display_ratio(pl: Plan, ratios_by_level: list[np.ndarray]) -> np.ndarray:
@@ -326,16 +416,18 @@ def _worst(a: np.ndarray, b: np.ndarray) -> np.ndarray:
 
 
 def _merge_headings(a: list[LevelMaps], b: list[LevelMaps]) -> list[LevelMaps]:
-    """Worst of two headings, level by level (governing quantity from the worse one)."""
+    """Worst of two headings, level by level and check by check (each point keeps the worse)."""
     out = []
     for x, y in zip(a, b, strict=True):
-        worse = y.ratio > x.ratio
+        jx, jy = x.judged, y.judged
+        by_check = {n: _worst(jx.by_check[n], jy.by_check[n]) for n in jx.checks}
+        gov = {n: np.where(jy.by_check[n] > jx.by_check[n], jy.governing_by_check[n], jx.governing_by_check[n])
+               for n in jx.checks}
         out.append(
             LevelMaps(
-                x.floor_m, _worst(x.ratio, y.ratio), np.where(worse, y.governing, x.governing),
-                _worst(x.ratio_public, y.ratio_public), _worst(x.e_v_per_m, y.e_v_per_m),
-                _worst(x.h_a_per_m, y.h_a_per_m), _worst(x.e_peak_v_per_m, y.e_peak_v_per_m),
-                _worst(x.h_peak_a_per_m, y.h_peak_a_per_m),
+                x.floor_m, x.power_w, judge(by_check, gov), _worst(x.ratio_public, y.ratio_public),
+                _worst(x.e_v_per_m, y.e_v_per_m), _worst(x.h_a_per_m, y.h_a_per_m),
+                _worst(x.e_peak_v_per_m, y.e_peak_v_per_m), _worst(x.h_peak_a_per_m, y.h_peak_a_per_m),
             )
         )
     return out
@@ -357,7 +449,7 @@ def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
     levels = None
     for heading in headings:
         model = model_for(site, t.name, tx_notes, heading_deg=heading)
-        maps_, sol = _level_maps(site, pl, lats, model, t.frequency_mhz, t.average_power_w, workers, progress)
+        maps_, sol = _level_maps(site, pl, lats, model, t, workers, progress)
         levels = maps_ if levels is None else _merge_headings(levels, maps_)
         if heading in (None, 0):
             first_sol, first_model = sol, model
@@ -374,12 +466,13 @@ def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
             "assessment stays valid for the model as described)"
         )
     ratio = display_ratio(pl, [m.ratio for m in levels])
-    areas = area_results(site, pl, [m.ratio for m in levels], [m.governing for m in levels])
+    areas = area_results(site, pl, [m.judged for m in levels])
     crossings = line_crossings(site, pl, levels[0].ratio)
     structure = model.structures[model.active]
     _, gain_dbi = engine.pattern_figures(structure, t.frequency_mhz)
-    lim_pub = limits.limits(site.standard, "public", t.frequency_mhz)
-    ff = farfield.distance_to_limit_m(t.average_power_w, 10 ** (gain_dbi / 10), lim_pub)
+    whole = checks.checks_for(site.standard, t.frequency_mhz)[0]
+    lim_pub = checks.check_limits(whole, "public", t.frequency_mhz)
+    ff = farfield.distance_to_limit_m(t.envelope_power_w * t.power_factor(whole, "public"), 10 ** (gain_dbi / 10), lim_pub)
     for n in tx_notes:
         if n not in notes:
             notes.append(n)
@@ -387,15 +480,16 @@ def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
     return TransmissionResult(
         t.name, t.antenna, t.frequency_mhz, t.power_w, t.average_power_w, sol.feed_impedance_ohm,
         ratio, levels[0].ratio_public, tuple(levels), areas, crossings,
-        power_ceiling_w(t.power_w, areas), model_distance_m(pl, levels[0].ratio_public, structure), ff, gain_dbi,
-        masked, tuple(tx_notes),
+        power_ceiling_w(t.power_w, areas), model_distance_m(pl, [m.ratio_public for m in levels], structure), ff,
+        gain_dbi, masked, tuple(tx_notes), levels[0].judged.checks,
     )
 
 
-def area_results(site: Site, pl: Plan, level_ratios, level_govs=None) -> tuple[AreaResult, ...]:
-    """Per area, on its own level: max ratio and where, governing quantity, exceedance area, masked points.
+def area_results(site: Site, pl: Plan, levels: list[Judged]) -> tuple[AreaResult, ...]:
+    """Per area, on its own level: the worst ratio over every check and where, the governing quantity
+    and check, each check's worst ratio, the exceedance area and the masked points.
 
-    Ground points outside every area are reported as the area "elsewhere" (public).
+    Ground points outside every area are reported as the area ``ELSEWHERE`` (public).
     """
     out = []
     cell_m2 = pl.spacing_m**2
@@ -405,26 +499,34 @@ def area_results(site: Site, pl: Plan, level_ratios, level_govs=None) -> tuple[A
     for i, a in enumerate(site.areas):
         k = by_floor.get(a.floor_m)
         groups.append((a.name, a.exposure, k, None if k is None else pl.levels[k].area_index == i))
-    groups.append(("elsewhere", "public", 0, pl.ground.area_index == -1))
+    groups.append((ELSEWHERE, "public", 0, pl.ground.area_index == -1))
     for name, tier, k, sel in groups:
         if k is None or not sel.any():
             out.append(AreaResult(name, tier, None, None, None, 0.0, 0))
             continue
-        ratio = level_ratios[k]
-        vals = np.where(sel, ratio, np.nan)
-        masked = int((sel & np.isnan(ratio)).sum())
+        j = levels[k]
+        vals = np.where(sel, j.ratio, np.nan)
+        masked = int((sel & np.isnan(j.ratio)).sum())
         if not np.isfinite(vals).any():
             out.append(AreaResult(name, tier, None, None, None, 0.0, masked))
             continue
         iy, ix = np.unravel_index(np.nanargmax(vals), vals.shape)
-        g = -1 if level_govs is None else int(level_govs[k][iy, ix])
+        g, c = int(j.governing[iy, ix]), int(j.check[iy, ix])
+        each = []
+        for n in j.checks:
+            v = np.where(sel, j.by_check[n], np.nan)
+            each.append((n, float(np.nanmax(v)) if np.isfinite(v).any() else None))
         out.append(
             AreaResult(
                 name, tier, float(vals[iy, ix]), (float(xx[iy, ix]), float(yy[iy, ix])),
                 ratios.GOVERNING[g] if g >= 0 else None, float((vals >= 1.0).sum() * cell_m2), masked,
+                j.checks[c] if c >= 0 else None, tuple(each),
             )
         )
     return tuple(out)
+
+
+ELSEWHERE = "elsewhere"
 
 
 def _filled(pl: Plan, z: np.ndarray, level: float) -> shapely.MultiPolygon:
@@ -476,13 +578,16 @@ def power_ceiling_w(power_w: float, areas: tuple[AreaResult, ...]) -> float | No
     return math.inf if worst <= 0 else power_w / worst
 
 
-def model_distance_m(pl: Plan, ratio_public: np.ndarray, structure: antennas.Structure) -> float | None:
-    """Farthest plan point with ratio >= 1 (public tier) from the antenna's feed, horizontally."""
+def model_distance_m(pl: Plan, ratio_public_by_level: list[np.ndarray], structure: antennas.Structure) -> float | None:
+    """Farthest plan point, on any level, with the whole-body ratio >= 1 against the public tier, from
+    the antenna's feed, horizontally (the figure the far-field estimate is compared with)."""
     fw = structure.wires[structure.feed_wire]
     fx = fw.start_m[0] + structure.feed_at * (fw.end_m[0] - fw.start_m[0])
     fy = fw.start_m[1] + structure.feed_at * (fw.end_m[1] - fw.start_m[1])
     xx, yy = np.meshgrid(pl.x_m, pl.y_m)
-    over = ratio_public >= 1.0
+    over = np.zeros(xx.shape, bool)
+    for r in ratio_public_by_level:
+        over |= np.nan_to_num(r) >= 1.0
     if not over.any():
         return None
     return float(np.hypot(xx - fx, yy - fy)[over].max())
@@ -501,12 +606,44 @@ def group_members(site: Site) -> list[tuple[str, ...]]:
 
 
 def combined(site: Site, pl: Plan, results: list[TransmissionResult]) -> CombinedResult:
-    """Per level: ratios summed within each group, the worst group at each point."""
+    """Per level: each check's ratios added within each group by the check's own summation rule, the
+    worst check at each point, then the worst group; and per group the common power scale."""
     by_name = {r.name: r for r in results}
     groups = group_members(site)
+    group_levels = []  # per group, per level: Judged
+    for g in groups:
+        per_level = []
+        for k in range(len(pl.levels)):
+            by_check = {}
+            for c in _checks_of(site, [by_name[n] for n in g]):
+                members = [by_name[n].levels[k].judged.by_check[c.id] for n in g if c.id in by_name[n].checks]
+                by_check[c.id] = checks.group_sum(c, members)
+            per_level.append(judge(by_check))
+        group_levels.append(per_level)
     per_level = []
     for k in range(len(pl.levels)):
-        sums = [ratios.sum_ratios([by_name[n].levels[k].ratio for n in g]) for g in groups]
-        per_level.append(ratios.combine_groups(sums))
+        names = tuple(dict.fromkeys(n for gl in group_levels for n in gl[k].checks))
+        # np.max keeps NaN: a point masked in any group stays masked
+        stack = {n: np.max([gl[k].by_check.get(n, np.zeros_like(gl[k].ratio)) for gl in group_levels], axis=0)
+                 for n in names}
+        per_level.append(judge(stack))
     areas = area_results(site, pl, per_level)
-    return CombinedResult(tuple(groups), display_ratio(pl, per_level), areas, line_crossings(site, pl, per_level[0]))
+    group_results = []
+    for g, gl in zip(groups, group_levels, strict=True):
+        gareas = area_results(site, pl, gl)
+        acc = [a for a in gareas if a.exposure != "none" and a.max_ratio is not None]
+        worst = max(acc, key=lambda a: a.max_ratio, default=None)
+        scale = None if worst is None or worst.max_ratio <= 0 else 1.0 / worst.max_ratio
+        name = by_name[g[0]].name if len(g) == 1 else (site.transmission(g[0]).group or " + ".join(g))
+        group_results.append(GroupResult(name, g, scale, worst.name if worst else None, worst.check if worst else None))
+    return CombinedResult(tuple(groups), display_ratio(pl, [j.ratio for j in per_level]), areas,
+                          line_crossings(site, pl, per_level[0].ratio), tuple(group_results))
+
+
+def _checks_of(site: Site, members: list[TransmissionResult]) -> list[checks.Check]:
+    """Every check that applies to some member of a group, each once, in the standard's order."""
+    out: dict[str, checks.Check] = {}
+    for t in members:
+        for c in checks.checks_for(site.standard, t.frequency_mhz):
+            out.setdefault(c.id, c)
+    return list(out.values())

@@ -103,52 +103,83 @@ def main() -> None:
 @click.option("--mhz", "mhz", type=float, multiple=True, help="frequency [MHz]; repeat for several")
 @click.option("--json", "as_json", is_flag=True, help="print one JSON document")
 def limits_cmd(standard, exposure, mhz, as_json):
-    """Print the limits that will be applied (a band table without --mhz)."""
+    """Print the limits that will be applied: every check of the standard (band tables without --mhz)."""
+    from .exposure import checks
     from .exposure import limits as lim
 
     try:
         lim.check_ids(standard, exposure)
-        tab = lim.table(standard, exposure)
         if not mhz:
-            rows = lim.band_rows(standard, exposure)
-            if as_json:
-                return _json(rows)
-            click.echo(f"{lim.STANDARD_TITLES[standard]}: {lim.exposure_title(standard, exposure)}")
-            avg = f"{tab.averaging_min:g} min" if tab.averaging_min else "not given"
-            click.echo(f"averaging time {avg}; f in MHz; edge frequencies: {_edge_text(tab.edge)}")
-            click.echo(f"{'from':>9} {'to':>9}  {'E':<18} {'H':<18} S")
-            for r in rows:
-                click.echo(
-                    f"{r['from_mhz']:>9g} {r['to_mhz']:>9g}  {r['e'] or '-':<18} {r['h'] or '-':<18} {r['s'] or '-'}"
-                )
-            return None
+            return _limit_tables(standard, exposure, as_json)
         for f in mhz:
             if not f > 0:
                 raise ValueError(f"--mhz must be > 0, got {f:g}")
-        res = lim.limits(standard, exposure, list(mhz))
+        lim.limits(standard, exposure, list(mhz))  # refuses a frequency outside the table
+        out = []
+        for f in mhz:
+            for c in checks.checks_for(standard, f):
+                res = checks.check_limits(c, exposure, f)
+                out.append({
+                    "standard": standard,
+                    "exposure": exposure,
+                    "check": c.id,
+                    "check_title": c.title,
+                    "frequency_mhz": float(f),
+                    "e_v_per_m": _nan_to_none(float(res.e_v_per_m[0])),
+                    "h_a_per_m": _nan_to_none(float(res.h_a_per_m[0])),
+                    "s_w_per_m2": _nan_to_none(float(res.s_w_per_m2[0])),
+                    "s_plane_wave_equivalent_w_per_m2": _nan_to_none(float(res.s_equivalent_w_per_m2[0]))
+                    if not math.isfinite(float(res.s_w_per_m2[0])) else None,
+                    "averaging_min": checks.window_min(c, exposure),
+                    "envelope_peak": c.envelope,
+                })
     except ValueError as err:
         raise InputError(str(err)) from None
-    out = [
-        {
-            "standard": standard,
-            "exposure": exposure,
-            "frequency_mhz": float(f),
-            "e_v_per_m": _nan_to_none(float(e)),
-            "h_a_per_m": _nan_to_none(float(h)),
-            "s_w_per_m2": _nan_to_none(float(s)),
-            "averaging_min": res.averaging_min,
-        }
-        for f, e, h, s in zip(res.frequency_mhz, res.e_v_per_m, res.h_a_per_m, res.s_w_per_m2, strict=True)
-    ]
     if as_json:
         return _json(out)
     click.echo(f"{lim.STANDARD_TITLES[standard]}: {lim.exposure_title(standard, exposure)}")
     for r in out:
-        parts = [f"{r['frequency_mhz']:g} MHz:"]
+        parts = [f"{r['frequency_mhz']:g} MHz {r['check']}:"]
         for key, unit in (("e_v_per_m", "V/m"), ("h_a_per_m", "A/m"), ("s_w_per_m2", "W/m^2")):
             parts.append(f"{key[0].upper()} {r[key]:.4g} {unit}" if r[key] is not None else f"{key[0].upper()} -")
-        avg = f"{r['averaging_min']:g} min" if r["averaging_min"] else "averaging time not given"
+        if r["s_plane_wave_equivalent_w_per_m2"] is not None:
+            parts.append(f"(S {r['s_plane_wave_equivalent_w_per_m2']:.4g} W/m^2 plane-wave equivalent, not applied)")
+        if r["envelope_peak"]:
+            avg = "at the envelope peak, not time-averaged"
+        else:
+            avg = f"{r['averaging_min']:g} min average" if r["averaging_min"] else "averaging time not given"
         click.echo("  ".join(parts) + f"  ({avg})")
+    return None
+
+
+def _limit_tables(standard: str, exposure: str, as_json: bool):
+    """The band tables of every check of a standard (the main table first)."""
+    from .exposure import checks
+    from .exposure import limits as lim
+
+    seen, tables = set(), []
+    for f in (0.1, 5.0, 50.0):  # every check of the standard applies at one of these
+        for c in checks.checks_for(standard, f):
+            if (c.id, c.table) not in seen:
+                seen.add((c.id, c.table))
+                tables.append(c)
+    if as_json:
+        return _json([dict(r, check=c.id) for c in tables for r in lim.band_rows(c.table, exposure)])
+    for c in tables:
+        tab = lim.table(c.table, exposure)
+        click.echo(f"{c.id}: {c.title}; {lim.exposure_title(standard, exposure)}")
+        avg = "at the envelope peak, not time-averaged" if c.envelope else (
+            f"{tab.averaging_min:g} min average" if tab.averaging_min else "averaging time not given")
+        click.echo(f"  {avg}; f in MHz; edge frequencies: {_edge_text(tab.edge)}")
+        if c.peak_factor == "interpolated":
+            click.echo("  each level is also capped at the peak factor (1.5 at 0.1 MHz to 32 at 10 MHz, linear) "
+                       "times the whole-body table")
+        if c.peak_factor == "32":
+            click.echo("  32 x the whole-body table below, at the envelope peak")
+            continue
+        click.echo(f"  {'from':>9} {'to':>9}  {'E':<18} {'H':<18} S")
+        for r in lim.band_rows(c.table, exposure):
+            click.echo(f"  {r['from_mhz']:>9g} {r['to_mhz']:>9g}  {r['e'] or '-':<18} {r['h'] or '-':<18} {r['s'] or '-'}")
     return None
 
 
@@ -290,15 +321,23 @@ def _write_all(a, folder: Path) -> None:
 def _summary(a, out: Path) -> None:
     click.echo(f"{a.site.title}: {a.site.standard}, {len(a.transmissions)} transmissions, {a.points_evaluated} points")
     for t in a.transmissions:
-        ceiling = "no limit within the lattice" if t.power_ceiling_w is None or math.isinf(t.power_ceiling_w) else f"{t.power_ceiling_w:.0f} W PEP"
-        click.echo(f"  {t.name} ({t.frequency_mhz:g} MHz, {t.average_power_w:.1f} W average): power ceiling {ceiling}")
+        ceiling = ("no limit within the lattice" if t.power_ceiling_w is None or math.isinf(t.power_ceiling_w)
+                   else f"{t.power_ceiling_w:.0f} W PEP ({t.governing_check} check)")
+        click.echo(f"  {t.name} ({t.frequency_mhz:g} MHz, {t.average_power_w:.1f} W average; checks "
+                   f"{', '.join(t.checks)}): power ceiling alone {ceiling}")
         for ar in t.areas:
             if ar.exposure == "none" or ar.max_ratio is None:
                 continue
             flag = "OVER" if ar.max_ratio >= 1 else ("not shown" if ar.masked_points else "ok")
             masked = f", {ar.masked_points} points too close to a wire (not shown compliant)" if ar.masked_points else ""
-            click.echo(f"    {ar.name:<28} {flag:<9} worst {ar.max_ratio:.3g} of the limit ({ar.governing}){masked}")
+            click.echo(f"    {ar.name:<28} {flag:<9} worst {ar.max_ratio:.3g} of the limit ({ar.check}, "
+                       f"{ar.governing}){masked}")
     click.echo(f"combined worst: {max((x.max_ratio or 0) for x in a.combined.areas if x.exposure != 'none'):.3g} of the limit")
+    for g in a.combined.group_results:
+        if len(g.members) > 1 and g.power_scale is not None:
+            powers = ", ".join(f"{m} {a.site.transmission(m).power_w * g.power_scale:.0f} W" for m in g.members)
+            click.echo(f"  group {g.name!r} together: power scale {g.power_scale:.3g} ({powers} PEP; "
+                       f"{g.worst_check} check in {g.worst_area})")
     click.echo(f"written to {out}/")
     click.echo("A model is not a measurement; local regulations and a qualified assessment prevail.")
 
@@ -363,7 +402,7 @@ def probe_cmd(site_file, at, exposure, only, as_json):
     import numpy as np
 
     from . import assess, engine
-    from .exposure import limits, ratios
+    from .exposure import checks, ratios
 
     site = _load(site_file)
     pts = []
@@ -382,20 +421,27 @@ def probe_cmd(site_file, at, exposure, only, as_json):
         if only and t.name not in only:
             continue
         model = assess.model_for(site, t.name)
-        nf = _engine_errors(lambda m=model, t=t: engine.near_fields(m, pts, t.average_power_w))
+        # fields at the envelope power; each check scales them to its own time base
+        nf = _engine_errors(lambda m=model, t=t: engine.near_fields(m, pts, t.envelope_power_w))
         e = engine.rms_magnitude(nf.e_v_per_m)
         h = engine.rms_magnitude(nf.h_a_per_m)
+        avg = math.sqrt(t.average_power_w / t.envelope_power_w)
         z = nf.solution.feed_impedance_ohm
         txs.append({"name": t.name, "frequency_mhz": t.frequency_mhz, "feed_impedance_ohm": [z.real, z.imag],
-                    "input_power_w": t.average_power_w, "average_power_w": t.average_power_w})
+                    "input_power_w": t.average_power_w, "average_power_w": t.average_power_w,
+                    "envelope_power_w": t.envelope_power_w})
         for k, (x, y, zz) in enumerate(pts):
-            lim = limits.limits(site.standard, tiers[k], t.frequency_mhz)
-            r, _ = ratios.exposure_ratio(e[k : k + 1], h[k : k + 1], lim)
             masked = bool(nf.masked[k])
+            by_check = {}
+            for c in checks.checks_for(site.standard, t.frequency_mhz):
+                r, _ = ratios.exposure_ratio(e[k : k + 1], h[k : k + 1], checks.check_limits(c, tiers[k], t.frequency_mhz))
+                by_check[c.id] = None if masked else float(r[0]) * t.power_factor(c, tiers[k])
+            worst = None if masked else max(by_check, key=by_check.get)
             rows.append({"x_m": x, "y_m": y, "z_m": zz, "transmission": t.name,
-                         "e_rms_v_per_m": None if masked else float(e[k]),
-                         "h_rms_a_per_m": None if masked else float(h[k]),
-                         "ratio": None if masked else float(r[0]), "exposure": tiers[k], "masked": masked})
+                         "e_rms_v_per_m": None if masked else float(e[k]) * avg,
+                         "h_rms_a_per_m": None if masked else float(h[k]) * avg,
+                         "ratio": None if masked else by_check[worst], "check": worst,
+                         "ratio_by_check": by_check, "exposure": tiers[k], "masked": masked})
     if only and not txs:
         raise InputError(f"--transmission: none of {', '.join(only)}; allowed: {', '.join(t.name for t in site.transmissions)}")
     if as_json:
@@ -405,8 +451,9 @@ def probe_cmd(site_file, at, exposure, only, as_json):
         if r["masked"]:
             click.echo(f"{r['transmission']}: {where}: masked (below ground or too close to a wire)")
         else:
-            click.echo(f"{r['transmission']}: {where}: E {r['e_rms_v_per_m']:.3g} V/m, H {r['h_rms_a_per_m']:.3g} A/m, "
-                       f"{r['ratio']:.3g} of the {r['exposure']} limit")
+            each = ", ".join(f"{c} {v:.3g}" for c, v in r["ratio_by_check"].items())
+            click.echo(f"{r['transmission']}: {where}: E {r['e_rms_v_per_m']:.3g} V/m, H {r['h_rms_a_per_m']:.3g} A/m "
+                       f"(30-minute average), {r['ratio']:.3g} of the {r['exposure']} limit ({r['check']} check; {each})")
     return EXIT_OK
 
 
@@ -425,8 +472,10 @@ def deck_cmd(site_file, name):
         raise InputError(err.problems[0]) from None
     model = assess.model_for(site, t.name)
     lat = assess._lattices(site, assess.plan(site))[0]
-    comments = [f"nfmap {__version__}: {site.title}", f"transmission {t.name!r}: excitation 1 V peak; "
-                f"scale fields by sqrt({t.average_power_w:.6g} W / P_in) for the average power"]
+    comments = [f"nfmap {__version__}: {site.title}",
+                f"transmission {t.name!r}: excitation 1 V peak, P_in = 0.5 Re(V I*); NEC prints peak phasors:",
+                f"E_rms = |E_peak| * sqrt(P / P_in) / sqrt(2), P = {t.average_power_w:.6g} W (30-minute average)",
+                f"or {t.envelope_power_w:.6g} W (envelope peak: PEP x feedline loss); H likewise"]
     click.echo(engine.nec_deck(model, lat, comments), nl=False)
     return EXIT_OK
 

@@ -18,7 +18,7 @@ import shapely
 
 from . import __version__
 from .assess import AreaResult, Assessment, exceedance_polygons, masked_polygons
-from .exposure import limits
+from .exposure import checks, limits
 
 CAUTIONS = (
     "This is a computer model, not a measurement. Its results are only as good as the inputs "
@@ -52,6 +52,8 @@ def _area_figures(areas: tuple[AreaResult, ...], crossings) -> dict:
     """The per-area figures and crossings shared by each transmission and the combined case."""
     return {
         "max_ratio_by_area": _area_dict(areas, "max_ratio"),
+        "governing_check_by_area": _area_dict(areas, "check"),
+        "max_ratio_by_area_and_check": {a.name: {c: _num(v) for c, v in a.by_check} for a in areas},
         "worst_point_m_by_area": {x.name: x.where_m for x in areas},
         "exceedance_area_m2_by_area": _area_dict(areas, "exceedance_area_m2"),
         "masked_points_by_area": _area_dict(areas, "masked_points"),
@@ -77,7 +79,12 @@ def results_doc(a: Assessment) -> dict:
                 "mode": spec.mode,
                 "duty_factor": spec.duty_factor,
                 "transmit_fraction": spec.transmit_fraction,
+                "transmit_fraction_6min": spec.fraction_6min,
+                "transmit_fraction_6min_given": spec.transmit_fraction_6min is not None,
                 "feedline_loss_db": spec.feedline_loss_db,
+                "envelope_power_w": _num(spec.envelope_power_w),
+                "checks": check_rows(site, spec),
+                "governing_check": t.governing_check,
                 "group": spec.group,
                 "feed_impedance_ohm": [_num(t.feed_impedance_ohm.real), _num(t.feed_impedance_ohm.imag)],
                 "average_power_w": _num(t.average_power_w),
@@ -116,11 +123,42 @@ def results_doc(a: Assessment) -> dict:
         "combined": {
             "groups": [list(g) for g in c.groups],
             **_area_figures(c.areas, c.crossings),
+            "power_scale": {g.name: _num(g.power_scale) for g in c.group_results},
+            "group_ceilings": [
+                {
+                    "group": g.name,
+                    "members": list(g.members),
+                    "power_scale": _num(g.power_scale),
+                    "power_ceiling_w_by_member": {
+                        m: None if g.power_scale is None else _num(site.transmission(m).power_w * g.power_scale)
+                        for m in g.members
+                    },
+                    "worst_area": g.worst_area,
+                    "governing_check": g.worst_check,
+                }
+                for g in c.group_results
+            ],
         },
         "over_limit": a.over,
         "warnings": list(a.warnings),
         "cautions": list(CAUTIONS),
     }
+
+
+def check_rows(site, t) -> list[dict]:
+    """What each check of a transmission applies: its table, time base, window and power per tier."""
+    out = []
+    for c in checks.checks_for(site.standard, t.frequency_mhz):
+        row = {"id": c.id, "title": c.title, "envelope_peak": c.envelope,
+               "spatial": "peak" if c.spatial == "peak" else site.grid.spatial, "summation": c.summation}
+        for tier in ("public", "occupational"):
+            w = checks.window_min(c, tier)
+            row[f"window_min_{tier}"] = w
+            row[f"power_w_{tier}"] = _num(t.envelope_power_w * t.power_factor(c, tier))
+            row[f"transmit_fraction_{tier}"] = None if c.envelope else (
+                t.fraction_6min if w is not None and w <= 6 else t.transmit_fraction)
+        out.append(row)
+    return out
 
 
 def geojson_doc(a: Assessment) -> dict:
@@ -150,7 +188,8 @@ def geojson_doc(a: Assessment) -> dict:
 
 def fields_arrays(a: Assessment) -> dict[str, np.ndarray]:
     """Arrays for fields.npz: plan axes; per level (k) its floor and tiers; per transmission (i) and
-    level the body-reduced rms E [V/m] and H [A/m], their spatial peaks and the ratio; the drawn
+    level the body-reduced rms E [V/m] and H [A/m] and their spatial peaks at the 30-minute average
+    power (``average_power_w``), the ratio (worst check) and each check's ratio; the drawn
     (worst-level) ratio per transmission and combined. NaN = masked."""
     out = {"x_m": a.plan.x_m, "y_m": a.plan.y_m, "body_heights_m": a.site.grid.body.heights_m(),
            "level_floor_m": np.array([lv.floor_m for lv in a.plan.levels])}
@@ -159,12 +198,15 @@ def fields_arrays(a: Assessment) -> dict[str, np.ndarray]:
     for i, t in enumerate(a.transmissions):
         out[f"t{i}_name"] = np.array(t.name)
         out[f"t{i}_ratio"] = t.ratio
+        scale = math.sqrt(t.average_power_w / t.levels[0].power_w)
         for k, m in enumerate(t.levels):
-            out[f"t{i}_level{k}_e_v_per_m"] = m.e_v_per_m
-            out[f"t{i}_level{k}_h_a_per_m"] = m.h_a_per_m
-            out[f"t{i}_level{k}_e_peak_v_per_m"] = m.e_peak_v_per_m
-            out[f"t{i}_level{k}_h_peak_a_per_m"] = m.h_peak_a_per_m
+            out[f"t{i}_level{k}_e_v_per_m"] = m.e_v_per_m * scale
+            out[f"t{i}_level{k}_h_a_per_m"] = m.h_a_per_m * scale
+            out[f"t{i}_level{k}_e_peak_v_per_m"] = m.e_peak_v_per_m * scale
+            out[f"t{i}_level{k}_h_peak_a_per_m"] = m.h_peak_a_per_m * scale
             out[f"t{i}_level{k}_ratio"] = m.ratio
+            for c in m.judged.checks:
+                out[f"t{i}_level{k}_ratio_{c}"] = m.judged.by_check[c]
     out["combined_ratio"] = a.combined.ratio
     return out
 

@@ -84,6 +84,10 @@ class _Pages:
         self.pdf.savefig(fig)
 
 
+CHECK_NAMES = {"whole-body": "whole-body", "local": "local", "stimulation": "stimulation", "peak": "envelope-peak"}
+CHECK_SHORT = {"whole-body": "WB", "local": "local", "stimulation": "stim", "peak": "peak"}
+
+
 def _fmt(v, spec=".3g", none="-"):
     return none if v is None or (isinstance(v, float) and not math.isfinite(v)) else format(v, spec)
 
@@ -95,7 +99,9 @@ def verdict_sentence(area, over_word="OVER THE LIMIT") -> str:
         return f"{area.name}: every point too close to a wire for the model; not shown compliant."
     x, y = area.where_m
     state = over_word if area.max_ratio >= 1 else ("not shown within limit" if area.masked_points else "within limit")
-    text = f"{area.name}: {state}, worst {area.max_ratio:.2g} of the {area.exposure} limit at ({x:.1f}, {y:.1f}) m"
+    by = f" ({CHECK_NAMES.get(area.check, area.check)} check)" if area.check else ""
+    text = (f"{area.name}: {state}, worst {area.max_ratio:.2g} of the {area.exposure} limit{by} "
+            f"at ({x:.1f}, {y:.1f}) m")
     if area.max_ratio >= 1:
         text += f", {area.exceedance_area_m2:.1f} m^2 at or above the limit"
     if area.masked_points:
@@ -142,6 +148,9 @@ def write_report(a, path: Path, figs, cfig) -> None:
         pg.line("(Combined case: transmissions in one group summed; the worst group at each point.)", size=8)
         for t in a.transmissions:
             pg.line(f"{t.name}: highest power within limits {_ceiling(t)}.", indent=0.2)
+        for g in a.combined.group_results:
+            if len(g.members) > 1:
+                pg.line(_group_sentence(a, g), indent=0.2)
         pg.heading("Cautions")
         for c in CAUTIONS:
             pg.line(f"- {c}")
@@ -167,15 +176,14 @@ def write_report(a, path: Path, figs, cfig) -> None:
                 f"{site.grid.spatial} of E^2 and of H^2 along it (ICNIRP 2020 spatial averaging of squared values).")
         areas = [[ar.name, ar.exposure, f"{ar.floor_m:g}"] for ar in site.areas]
         pg.table(["area", "tier", "floor m"], areas, [30, 14, 8])
+        _checks_section(pg, a)
         for t in a.transmissions:
             pg.heading(f"Transmission: {t.name}")
             z = t.feed_impedance_ohm
             pg.line(f"{t.frequency_mhz:g} MHz on {t.antenna}; feed impedance {z.real:.1f} {'+' if z.imag >= 0 else '-'} "
                     f"j{abs(z.imag):.1f} ohm; {t.power_w:g} W PEP, {t.average_power_w:.3g} W average accepted "
                     "(all of it radiated: conservative).")
-            rows = [[ar.name, ar.exposure, _fmt(ar.max_ratio), f"({ar.where_m[0]:.1f}, {ar.where_m[1]:.1f})" if ar.where_m else "-",
-                     ar.governing or "-", f"{ar.exceedance_area_m2:.1f}", str(ar.masked_points)] for ar in t.areas]
-            pg.table(["area", "tier", "max ratio", "where m", "by", "over m^2", "masked"], rows, [26, 12, 9, 14, 3, 8, 6])
+            _area_table(pg, t.areas, t.checks, quantity=True)
             _crossing_lines(pg, t.crossings)
             pg.line(f"Highest power within limits: {_ceiling(t)}.")
             pg.line(_distance_sentence(t))
@@ -184,10 +192,13 @@ def write_report(a, path: Path, figs, cfig) -> None:
         pg.heading("Combined")
         pg.line("Groups (transmissions that run at the same time, ratios summed): "
                 + "; ".join(" + ".join(g) for g in a.combined.groups))
-        rows = [[ar.name, ar.exposure, _fmt(ar.max_ratio), f"({ar.where_m[0]:.1f}, {ar.where_m[1]:.1f})" if ar.where_m else "-",
-                 f"{ar.exceedance_area_m2:.1f}", str(ar.masked_points)] for ar in a.combined.areas]
-        pg.table(["area", "tier", "max ratio", "where m", "over m^2", "masked"], rows, [26, 12, 9, 14, 8, 6])
+        pg.line("Each check's ratios are added within a group by that check's own rule (power ratios for the "
+                "time-averaged checks, field ratios for the envelope checks); the worst group is shown.", size=8)
+        _area_table(pg, a.combined.areas, tuple(dict.fromkeys(c for t in a.transmissions for c in t.checks)))
         _crossing_lines(pg, a.combined.crossings)
+        for g in a.combined.group_results:
+            if len(g.members) > 1:
+                pg.line(_group_sentence(a, g))
         pg.heading("Assumptions and limitations")
         for text in _assumptions(a):
             pg.line(f"- {text}")
@@ -198,6 +209,84 @@ def write_report(a, path: Path, figs, cfig) -> None:
             pg.figure_page(fig)
         pg.figure_page(cfig)
         pg.close()
+
+
+def _area_table(pg, areas, check_ids, quantity: bool = False) -> None:
+    """Per area: the worst ratio, the check (and quantity) giving it, and each check's worst ratio."""
+    rows = []
+    for ar in areas:
+        each = dict(ar.by_check)
+        by = CHECK_SHORT.get(ar.check, "-") + (f" {ar.governing}" if quantity and ar.governing else "")
+        rows.append([ar.name, ar.exposure, _fmt(ar.max_ratio), by if ar.check else "-",
+                     *[_fmt(each.get(c)) for c in check_ids],
+                     f"({ar.where_m[0]:.1f}, {ar.where_m[1]:.1f})" if ar.where_m else "-",
+                     f"{ar.exceedance_area_m2:.1f}", str(ar.masked_points)])
+    pg.table(["area", "tier", "worst", "by", *[CHECK_SHORT[c] for c in check_ids], "where m", "over m^2", "masked"],
+             rows, [24, 12, 7, 9, *[7 for _ in check_ids], 13, 8, 6])
+
+
+def _checks_section(pg, a) -> None:
+    """Which checks the standard asks for, and which power and transmit fraction served each window."""
+    from .records import check_rows
+
+    site = a.site
+    pg.heading("Checks applied")
+    for line in CHECK_TEXT[site.standard]:
+        pg.line(f"- {line}")
+    rows = []
+    defaulted = []
+    for t in site.transmissions:
+        for r in check_rows(site, t):
+            for tier in ("public", "occupational"):
+                w = r[f"window_min_{tier}"]
+                win = "envelope peak" if r["envelope_peak"] else (f"{w:g} min" if w is not None else "not given")
+                frac = r[f"transmit_fraction_{tier}"]
+                rows.append([t.name, CHECK_NAMES[r["id"]], tier, win, "-" if frac is None else f"{frac:g}",
+                             f"{r[f'power_w_{tier}']:.4g}", r["spatial"]])
+        if t.transmit_fraction_6min is None:
+            defaulted.append(t.name)
+    pg.table(["transmission", "check", "tier", "window", "fraction", "power W", "body line"], rows,
+             [18, 13, 13, 14, 8, 9, 8])
+    if defaulted:
+        pg.line("Assumption: transmit_fraction_6min not given for " + ", ".join(defaulted) + "; the 30-minute "
+                "transmit_fraction was used for the 6-minute windows as well. If the busiest 6 minutes are busier, "
+                "give transmit_fraction_6min.", size=8)
+
+
+CHECK_TEXT = {
+    "icnirp-2020": [
+        "Whole-body: Table 5, E^2 and H^2 averaged along the body line and over 30 minutes.",
+        "Local: Table 6, the spatial peak along the body line, averaged over 6 minutes (note 4: below 30 MHz "
+        "neither the peak spatial E nor H may exceed the level).",
+        "Stimulation, 100 kHz - 10 MHz: the ICNIRP 2010 reference levels (E 83 / 170 V/m, B 27 / 100 uT, public / "
+        "occupational) applied to the rms field at the envelope peak (PEP x feedline loss; no duty factor, no "
+        "transmit fraction) and to the spatial peak along the body line: the levels are not time-averaged and the "
+        "text read gives no spatial averaging for them, so the conservative reading is taken.",
+    ],
+    "icnirp-1998": [
+        "Whole-body: Tables 6 (occupational) and 7 (general public), averaged along the body line and over 6 minutes.",
+        "Stimulation, up to 10 MHz: eqs. 10-11 (E / 87 V/m and H / 5 A/m public; 610 V/m and 24.4 A/m occupational, "
+        "from memory) and the peak rule for pulsed fields (1.5 x the level at 100 kHz to 32 x at 10 MHz, interpolated "
+        "linearly in frequency: the strictest reading), on the field at the envelope peak and the spatial peak.",
+        "Above 10 MHz: the peak field at the envelope peak may not exceed 32 x the Table 6/7 levels.",
+    ],
+    "fcc-1310": [
+        "Table 1: E and H (and S above 30 MHz) averaged along the body line and over 30 minutes (general "
+        "population / uncontrolled) or 6 minutes (occupational / controlled). Below 30 MHz the power density in "
+        "the table is a plane-wave equivalent and is not applied: E and H are judged separately.",
+        "47 CFR 1.1310 has no separate rule for nerve stimulation or for the envelope peak: none is applied.",
+    ],
+}
+
+
+def _group_sentence(a, g) -> str:
+    members = " + ".join(g.members)
+    if g.power_scale is None:
+        return f"Group {g.name!r} ({members}): no accessible point is exposed; not limited on the lattice."
+    powers = ", ".join(f"{m} {a.site.transmission(m).power_w * g.power_scale:.0f} W PEP" for m in g.members)
+    return (f"Group {g.name!r} ({members}) running together: all members' powers times {g.power_scale:.3g} put the "
+            f"worst combined point ({g.worst_area}, {CHECK_NAMES.get(g.worst_check, g.worst_check)} check) at the "
+            f"limit: {powers}. The single-transmission ceilings hold only when each transmission runs alone.")
 
 
 def _crossing_lines(pg, crossings) -> None:
@@ -213,7 +302,9 @@ def _crossing_lines(pg, crossings) -> None:
 def _ceiling(t) -> str:
     if t.power_ceiling_w is None or math.isinf(t.power_ceiling_w):
         return "not limited by any accessible area on the lattice"
-    text = f"{t.power_ceiling_w:.0f} W PEP with the same mode and habits (an exposure figure: the licence limit still applies)"
+    text = (f"{t.power_ceiling_w:.0f} W PEP with the same mode and habits, set by the "
+            f"{CHECK_NAMES.get(t.governing_check, t.governing_check)} check, when it runs alone "
+            "(an exposure figure: the licence limit still applies)")
     if any(a.masked_points for a in t.areas if a.exposure != "none"):
         text += " (points too close to a wire left out: keep people off those zones)"
     return text
@@ -223,9 +314,9 @@ def _distance_sentence(t) -> str:
     ff = t.far_field_distance_m
     md = t.model_distance_m
     base = (f"Far-field estimate (FCC OET 65 Eq. 7, {t.gain_dbi:.1f} dBi free-space gain, ground reflection 2.56): "
-            f"the public limit is met beyond {ff:.1f} m. ")
+            f"the whole-body public limit is met beyond {ff:.1f} m. ")
     if md is None:
-        return base + "The model finds no point at or above the public limit on the lattice."
+        return base + "The model finds no point, on any floor, at or above the whole-body public limit on the lattice."
     if ff < md:
         return base + (f"The model finds points at or above it out to {md:.1f} m: the far-field estimate is SHORTER "
                        "than the model - here the simple formula would under-state the exposure.")
@@ -249,6 +340,12 @@ def _assumptions(a) -> list[str]:
         "Masked: a plan point whose body line comes within the exclusion distance of a wire (10 radii or half a "
         "segment, the larger) or below ground; its fields are not computed and it never counts as compliant.",
         "The far-field estimate is shown only for comparison; the verdicts come from the model.",
+        "Contact currents (touching the antenna, its feed line or a conductor near it, and currents induced "
+        "through the limbs) are outside what the model assesses; the standards set separate levels for them "
+        "(ICNIRP 2010: 20 mA public, 40 mA occupational, 100 kHz - 10 MHz).",
+        "Simultaneous transmissions: a group's ratios are added per check: E^2 and H^2 ratios for the time-averaged "
+        "checks, field ratios for the envelope-peak checks (conservative: a linear sum of field ratios is never "
+        "smaller than the root of the sum of their squares); E and H terms are not split, which is also conservative.",
     ]
     return out + list(a.warnings)
 
@@ -260,4 +357,5 @@ REFERENCES = [
     "[4] FCC OET Bulletin 65, Edition 97-01 (1997), and Supplement B (amateur stations).",
     "[5] G. J. Burke, A. J. Poggio, Numerical Electromagnetics Code (NEC) - Method of Moments, LLNL, 1981.",
     "[6] Rec. ITU-R P.527-3, Electrical characteristics of the surface of the Earth, 1992.",
+    "[7] ICNIRP, Guidelines for limiting exposure to time-varying electric and magnetic fields (1 Hz to 100 kHz), Health Phys. 99(6):818-836, 2010 (levels read in a textbook reproduction).",
 ]

@@ -21,9 +21,14 @@ import antennas
 from antennas import GeometryError, Structure
 
 from . import engine
-from .exposure import averaging, limits
+from .exposure import averaging, checks, limits
 
 TIERS = ("public", "occupational", "none")
+# Default body line: 0.2 to 2.0 m in 0.2 m steps. The top of 2 m follows the practice of averaging
+# over a standing person from the ground to 2 m in 0.2 m steps (IEEE C95.1-1999, read in a secondary
+# source; common practice); the bottom stays 0.2 m up, above the radials that stand in for a buried
+# radial system 0.05 m above the surface, so that the stand-in does not mask the ground.
+BODY_FROM_M, BODY_TO_M, BODY_POINTS = 0.2, 2.0, 10
 STRICTNESS = {"public": 0, "occupational": 1, "none": 2}  # lower = stricter
 
 
@@ -87,10 +92,26 @@ class Transmission:
     transmit_fraction: float
     feedline_loss_db: float
     group: str | None
+    transmit_fraction_6min: float | None = None  # None: the same as transmit_fraction
 
     @property
     def average_power_w(self) -> float:
+        """Power accepted averaged over 30 minutes: PEP x duty x transmit_fraction x loss [W]."""
         return averaging.average_power_w(self.power_w, self.duty_factor, self.transmit_fraction, self.feedline_loss_db)
+
+    @property
+    def fraction_6min(self) -> float:
+        """Share of the worst 6 minutes spent transmitting (``transmit_fraction`` unless given)."""
+        return self.transmit_fraction if self.transmit_fraction_6min is None else self.transmit_fraction_6min
+
+    @property
+    def envelope_power_w(self) -> float:
+        """Power accepted at the envelope peak: PEP x feedline loss, no duty, no fraction [W]."""
+        return averaging.average_power_w(self.power_w, 1.0, 1.0, self.feedline_loss_db)
+
+    def power_factor(self, check, exposure: str) -> float:
+        """Power of a check (``exposure.checks.Check``) relative to :attr:`envelope_power_w`."""
+        return checks.power_factor(check, exposure, self.duty_factor, self.transmit_fraction, self.fraction_6min)
 
 
 @dataclass(frozen=True)
@@ -129,7 +150,7 @@ GRID_KEYS = {"spacing_m", "margin_m", "body_from_m", "body_to_m", "body_points",
 AREA_KEYS = {"name", "polygon", "exposure", "floor_m"}
 LINE_KEYS = {"name", "points"}
 TX_KEYS = {"name", "antenna", "frequency_mhz", "power_w", "mode", "duty_factor", "transmit_fraction",
-           "feedline_loss_db", "group"}
+           "transmit_fraction_6min", "feedline_loss_db", "group"}
 ANTENNA_KEYS = {
     "dipole": {"length_m", "resonant_mhz", "height_m", "heading_deg", "apex_deg", "wire_diameter_mm"},
     "vertical": {"length_m", "resonant_mhz", "base_height_m", "radials", "radial_length_m", "radial_droop_deg",
@@ -267,12 +288,12 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
     if c.keys(gr, GRID_KEYS, "grid"):
         spacing = c.num(gr, "spacing_m", "grid", 0.5, lo=0, lo_open=True)
         margin = c.num(gr, "margin_m", "grid", 5.0, lo=0)
-        b_from = c.num(gr, "body_from_m", "grid", 0.2, lo=0)
-        b_to = c.num(gr, "body_to_m", "grid", 1.8, lo=0)
-        n = gr.get("body_points", 9)
+        b_from = c.num(gr, "body_from_m", "grid", BODY_FROM_M, lo=0)
+        b_to = c.num(gr, "body_to_m", "grid", BODY_TO_M, lo=0)
+        n = gr.get("body_points", BODY_POINTS)
         if isinstance(n, bool) or not isinstance(n, int) or not 1 <= n <= 50:
             c.bad("grid.body_points", n, "a whole number from 1 to 50")
-            n = 9
+            n = BODY_POINTS
         spatial = c.text(gr, "spatial", "grid", "average", choices=("average", "peak"))
         if b_from is not None and b_to is not None and b_to < b_from:
             c.bad("grid.body_to_m", b_to, f"a height >= body_from_m ({b_from:g})")
@@ -384,6 +405,12 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
         if duty is None and mode is not None:
             duty = averaging.duty_factor(mode)
         frac = c.num(t, "transmit_fraction", where, 1.0, lo=0, lo_open=True, hi=1)
+        frac6 = c.num(t, "transmit_fraction_6min", where, None, lo=0, lo_open=True, hi=1)
+        if frac is not None and frac6 is not None and frac6 < frac:
+            c.bad(f"{where}.transmit_fraction_6min", frac6,
+                  f"a share >= transmit_fraction ({frac:g}): the worst 6 minutes of a 30-minute window are at least "
+                  "as busy as the window's average")
+            frac6 = None
         loss = c.num(t, "feedline_loss_db", where, 0.0, lo=0)
         grp = c.text(t, "group", where)
         if standard and f is not None:
@@ -394,7 +421,7 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
                     c.problems.append(f"{name}: {where}.frequency_mhz: {err}")
                     break
         if None not in (nm, ant, f, pw, duty, frac, loss):
-            tx_list.append(Transmission(nm, ant, f, pw, mode, duty, frac, loss, grp))
+            tx_list.append(Transmission(nm, ant, f, pw, mode, duty, frac, loss, grp, frac6))
     _unique(c, [t.name for t in tx_list], "transmission")
     if not tx_list and not any("transmission[" in p for p in c.problems):
         c.problems.append(f"{name}: transmission: missing; allowed: at least one [[transmission]] table")
@@ -422,9 +449,28 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
             problems.append(f"{name}: antenna: {err}")
     if problems:
         raise SiteError(problems)
+    notes += _body_line_notes(site)
     for n in notes:
         warnings.warn(n, SiteWarning, stacklevel=2)
     return site
+
+
+def _body_line_notes(site: Site) -> list[str]:
+    """A body line starting at or just above the radials that stand in for a buried radial system."""
+    out = []
+    if not site.ground.finite:
+        return out
+    for a in site.antennas:
+        if a.kind != "vertical" or a.param("base_height_m", 0.0) != 0.0 or not a.param("radials", 4):
+            continue
+        rh = a.param("radial_height_m", 0.05)
+        if site.grid.body.from_m < rh + 0.1:
+            out.append(
+                f"grid.body_from_m = {site.grid.body.from_m:g} m is within 0.1 m of the radials of {a.name!r} "
+                f"({rh:g} m up, standing in for a buried system): points near them are masked; start the body line "
+                f"at {rh + 0.15:.2f} m or higher"
+            )
+    return out
 
 
 def _tables(c: _Checker, doc: dict, key: str) -> list:

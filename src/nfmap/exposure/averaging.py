@@ -76,8 +76,8 @@ class BodyLine:
     """The vertical line of evaluation heights standing for a person [m above the floor]."""
 
     from_m: float = 0.2
-    to_m: float = 1.8
-    points: int = 9
+    to_m: float = 2.0
+    points: int = 10
 
     def heights_m(self, floor_m: float = 0.0) -> np.ndarray:
         if self.points < 1:

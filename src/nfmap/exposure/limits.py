@@ -17,7 +17,7 @@ import numpy as np
 STANDARDS = ("icnirp-2020", "icnirp-1998", "fcc-1310")
 EXPOSURES = ("public", "occupational")
 STANDARD_TITLES = {
-    "icnirp-2020": "ICNIRP 2020 (Health Phys. 118(5):483-524), Table 5, whole-body average",
+    "icnirp-2020": "ICNIRP 2020 (Health Phys. 118(5):483-524), Tables 5 and 6, with the ICNIRP 2010 levels to 10 MHz",
     "icnirp-1998": "ICNIRP 1998 (Health Phys. 74(4):494-522), Tables 6 and 7",
     "fcc-1310": "US FCC 47 CFR 1.1310, Table 1",
 }
@@ -77,14 +77,21 @@ def check_ids(standard: str, exposure: str) -> None:
         raise ValueError(f"unknown exposure {exposure!r}; valid: {', '.join(EXPOSURES)}")
 
 
+# Tables of the standards' other checks (see ``checks.py``), beside each standard's main table.
+EXTRA_TABLES = ("icnirp-2020-local", "icnirp-2010-stimulation", "icnirp-1998-stimulation")
+
+
 @functools.cache
 def table(standard: str, exposure: str) -> Table:
-    """The band table of a standard and tier, read from the package data."""
-    check_ids(standard, exposure)
+    """The band table of a standard (or of one of ``EXTRA_TABLES``) and tier, from the package data."""
+    if standard not in EXTRA_TABLES:
+        check_ids(standard, exposure)
+    elif exposure not in EXPOSURES:
+        check_ids("icnirp-2020", exposure)
     text = resources.files("nfmap.exposure").joinpath(f"data/{standard}-{exposure}.csv").read_text()
     header = [line[1:].strip() for line in text.splitlines() if line.startswith("#")]
     meta = {k.strip(): v.strip() for k, _, v in (h.partition(":") for h in header if ":" in h)}
-    averaging = meta.get("averaging_min")
+    averaging = (meta.get("averaging_min") or "").split()
     edge = meta.get("edge", "stricter").split()[0]
     rows = csv.DictReader(line for line in text.splitlines() if not line.startswith("#"))
 
@@ -103,7 +110,7 @@ def table(standard: str, exposure: str) -> Table:
         )
         for r in rows
     )
-    return Table(standard, exposure, " ".join(header[:2]), float(averaging) if averaging else None, edge, bands)
+    return Table(standard, exposure, " ".join(header[:2]), float(averaging[0]) if averaging else None, edge, bands)
 
 
 def _value(pair, f):
@@ -135,7 +142,12 @@ def limits(standard: str, exposure: str, frequency_mhz) -> Limits:
     (ICNIRP 2020 writes ">30-400 MHz"); ``edge: stricter`` takes, per quantity, the smaller of
     the two bands' values (the document does not say; conservative).
     """
-    tab = table(standard, exposure)
+    return table_limits(table(standard, exposure), frequency_mhz)
+
+
+def table_limits(tab: Table, frequency_mhz) -> Limits:
+    """Levels of one band table at ``frequency_mhz`` (see :func:`limits`)."""
+    standard, exposure = tab.standard, tab.exposure
     f = np.atleast_1d(np.asarray(frequency_mhz, float))
     bad = ~((f >= tab.from_mhz) & (f <= tab.to_mhz)) | ~np.isfinite(f)
     if bad.any():
