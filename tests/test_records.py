@@ -42,6 +42,11 @@ def test_results_json_has_the_interface_schema(written):
         assert key in t
     assert t["crossings"] and {"line", "from_m", "to_m", "length_m"} <= set(t["crossings"][0])
     assert t["max_ratio_by_area"]["field"] == pytest.approx(a.transmissions[0].areas[0].max_ratio, rel=1e-5)
+    for key in ("governing_check_by_area", "max_ratio_by_area_and_check", "checks", "governing_check",
+                "transmit_fraction_6min", "envelope_power_w"):
+        assert key in t
+    assert [c["id"] for c in t["checks"]] == ["whole-body", "local"]  # 14.2 MHz, ICNIRP 2020
+    assert "power_scale" in doc["combined"] and "group_ceilings" in doc["combined"]
 
 
 def test_geojson_polygons_per_transmission_and_level(written):
@@ -99,3 +104,17 @@ def test_every_example_runs_and_renders(example, tmp_path):
         assert f"Transmission: {t['name']}" in text
     for area in doc["areas"]:
         assert area["name"] in text
+    # every area of every transmission names the check that governs it, in results.json and in the summary
+    for t in doc["transmissions"]:
+        for name, ratio in t["max_ratio_by_area"].items():
+            if ratio is not None:
+                assert t["governing_check_by_area"][name] in t["max_ratio_by_area_and_check"][name]
+    assert "Checks applied" in text
+    if doc["standard"] == "icnirp-2020":
+        assert "Local: Table 6" in text and "Whole-body: Table 5" in text
+    if example == "demo.toml":
+        # the demo's record lists the group ceiling of its contest group
+        (g,) = [g for g in doc["combined"]["group_ceilings"] if g["group"] == "contest"]
+        assert g["power_scale"] > 0 and "Group 'contest'" in text
+        assert doc["combined"]["power_scale"]["contest"] == g["power_scale"]
+        assert "(local," in r.stdout or "(whole-body," in r.stdout
