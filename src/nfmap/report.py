@@ -114,11 +114,14 @@ def write_maps_and_report(a, folder: Path) -> None:
     wires = maps.wires_of(a.site)
     figs = []
     for t in a.transmissions:
-        title = f"{t.name}: {t.frequency_mhz:g} MHz, {t.power_w:g} W PEP, {t.average_power_w:.3g} W average"
+        title = (f"{t.name}: {t.frequency_mhz:g} MHz, {t.power_w:g} W PEP, {t.average_power_w:.3g} W average\n"
+                 f"worst of {' / '.join(CHECK_NAMES[c] for c in t.checks)} at each point; "
+                 f"binding: {CHECK_NAMES.get(t.governing_check, '-')}")
         fig = maps.map_figure(a, t.ratio, title, t.crossings, t.areas, caption, wires)
         fig.savefig(folder / map_name(t.name), dpi=170)
         figs.append(fig)
-    cfig = maps.map_figure(a, a.combined.ratio, "combined: groups summed, worst group shown", a.combined.crossings,
+    cfig = maps.map_figure(a, a.combined.ratio, "combined: groups summed check by check; worst check and group",
+                           a.combined.crossings,
                            a.combined.areas, caption, wires)
     cfig.savefig(folder / "map-combined.png", dpi=170)
     write_report(a, folder / "report.pdf", figs, cfig)
