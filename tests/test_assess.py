@@ -91,8 +91,9 @@ def beam_site(heading):
         "format": 1,
         "site": {"title": "beam", "standard": "icnirp-2020"},
         "ground": {"kind": "free-space"},
-        "grid": {"spacing_m": 2.0, "margin_m": 0.0, "body_points": 1, "body_from_m": 10.0, "body_to_m": 10.0},
-        "area": [{"name": "all", "polygon": [[-12, -12], [12, -12], [12, 12], [-12, 12]]}],
+        "grid": {"spacing_m": 2.0, "margin_m": 0.0, "body_points": 1, "body_from_m": 2.0, "body_to_m": 2.0},
+        # a roof terrace 8 m up: the body line point at 10 m, 2 m below the beam
+        "area": [{"name": "all", "polygon": [[-12, -12], [12, -12], [12, 12], [-12, 12]], "floor_m": 8.0}],
         "antenna": [{"name": "b", "kind": "beam", "position_m": [0, 0], "design_mhz": 28.4, "height_m": 12,
                      "heading_deg": heading}],
         "transmission": [{"name": "t", "antenna": "b", "frequency_mhz": 28.4, "power_w": 100, "mode": "carrier"}],

@@ -230,10 +230,17 @@ def plan(site: Site) -> Plan:
         for i, a in enumerate(site.areas):
             if a.floor_m != floor:
                 continue
-            inside = shapely.contains_xy(a.shape, xx, yy) | shapely.intersects_xy(a.shape.boundary, xx, yy)
+            # only the lattice points inside the area's bounding box are tested (fast for many small areas)
+            bx0, by0, bx1, by1 = a.shape.bounds
+            cols = slice(int(np.searchsorted(x, bx0 - 1e-9)), int(np.searchsorted(x, bx1 + 1e-9, side="right")))
+            rows = slice(int(np.searchsorted(y, by0 - 1e-9)), int(np.searchsorted(y, by1 + 1e-9, side="right")))
+            sx_, sy_ = xx[rows, cols], yy[rows, cols]
+            if sx_.size == 0:
+                continue
+            inside = shapely.contains_xy(a.shape, sx_, sy_) | shapely.intersects_xy(a.shape.boundary, sx_, sy_)
             rank = STRICTNESS[a.exposure]
-            take = inside & (rank < strict)
-            tier[take], index[take], strict[take] = a.exposure, i, rank
+            take = inside & (rank < strict[rows, cols])
+            tier[rows, cols][take], index[rows, cols][take], strict[rows, cols][take] = a.exposure, i, rank
         if floor == 0.0:
             window = (slice(0, len(y)), slice(0, len(x)))
         else:

@@ -252,39 +252,71 @@ def _engine_errors(fn):
 
 
 def _default_jobs(jobs: int | None) -> int:
-    import os
-
+    cores = os.cpu_count() or 1
     if jobs is not None and jobs < 1:
         raise InputError(f"--jobs must be >= 1, got {jobs}")
-    return jobs or os.cpu_count() or 1
+    if jobs is not None and jobs > cores:
+        click.echo(f"nfmap: warning: --jobs {jobs} is more than the {cores} cores here; using {cores}", err=True)
+        return cores
+    return jobs or cores
+
+
+def _budget(site, jobs: int, large: bool, quiet: bool = False):
+    """Estimate the work before any solve; refuse beyond the budget unless ``--large``."""
+    from . import budget
+
+    est = _engine_errors(lambda: budget.estimate(site))
+    over = est.over()
+    if over and not large:
+        for o in over[:-1]:
+            click.echo(f"nfmap: error: {site.path}: beyond the budget: {o}", err=True)
+        raise InputError(f"{site.path}: beyond the budget: {over[-1]}; give --large to run it anyway "
+                         f"(estimate: {est.describe(jobs)})")
+    if not quiet:
+        click.echo(f"estimate: {est.describe(jobs)}", err=True)
+    return est
+
+
+def _on_sigterm(signum, frame):
+    click.echo("nfmap: stopped by a signal; the output folder was left as it was", err=True)
+    raise SystemExit(143)
 
 
 @main.command("run")
 @click.argument("site_file", type=click.Path(dir_okay=False))
 @click.option("-o", "--output", "out_dir", type=click.Path(file_okay=False), help="output folder [nfmap-out/<stem>]")
 @click.option("--jobs", type=int, help="worker processes [all cores]")
-@click.option("--force", is_flag=True, help="replace an existing output folder")
-@click.option("--quiet", is_flag=True, help="no progress bar")
-def run_cmd(site_file, out_dir, jobs, force, quiet):
+@click.option("--force", is_flag=True, help="replace an output folder that an earlier run wrote")
+@click.option("--large", is_flag=True, help="run beyond the size budget")
+@click.option("--quiet", is_flag=True, help="no progress")
+def run_cmd(site_file, out_dir, jobs, force, large, quiet):
     """The whole assessment: fields, ratios, area verdicts, maps, report, data."""
     site = _load(site_file)
     out = Path(out_dir) if out_dir else Path("nfmap-out") / Path(site_file).stem
-    if out.exists() and not force:
-        raise InputError(f"{out} exists; give --force to replace it (or -o another folder)")
-    return _run_site(site, out, _default_jobs(jobs), force, quiet)
+    return _run_site(site, out, _default_jobs(jobs), force, quiet, large)
 
 
-def _run_site(site, out: Path, jobs: int, force: bool, quiet: bool) -> int:
-    from . import assess
-    from .records import write_folder
+def _run_site(site, out: Path, jobs: int, force: bool, quiet: bool, large: bool = False) -> int:
+    import signal
 
-    total = _points_total(site)
-    show = not quiet and sys.stderr.isatty()
-    if not quiet and not show:
-        click.echo(f"computing near fields: {total} points over {len(site.transmissions)} transmissions, {jobs} jobs", err=True)
-    with click.progressbar(length=total, label="near fields", file=sys.stderr) if show else _Null() as bar:
-        a = _engine_errors(lambda: assess.assess(site, jobs=jobs, progress=bar.update))
-    write_folder(out, force, lambda folder: _write_all(a, folder))
+    from . import assess, outfolder
+
+    est = _budget(site, jobs, large, quiet)
+    previous = signal.signal(signal.SIGTERM, _on_sigterm)
+    try:
+        with outfolder.reserved(out, force, int(est.output_bytes)) as res:
+            for n in res.notes:
+                click.echo(f"nfmap: {n}", err=True)
+            with _progress(est.field_points, jobs, quiet) as bar:
+                a = _engine_errors(lambda: assess.assess(site, jobs=jobs, progress=bar.update))
+            res.commit(lambda folder: _write_all(a, folder),
+                       {"site_file": Path(site.path).name, "site_sha256": site.sha256})
+    except outfolder.OutputError as err:
+        raise InputError(str(err)) from None
+    except OSError as err:
+        raise InputError(f"{out}: could not write the record ({err.strerror or err}); nothing was replaced") from None
+    finally:
+        signal.signal(signal.SIGTERM, previous)
     _summary(a, out)
     return EXIT_OVER if a.over else EXIT_OK
 
@@ -300,11 +332,39 @@ class _Null:
         pass
 
 
-def _points_total(site) -> int:
-    from . import assess
+class _Lines:
+    """Progress without a terminal: a line every few seconds with points done and time left."""
 
-    lats = assess._lattices(site, assess.plan(site))
-    return sum(lat.size for lat in lats) * sum(len(assess.headings_for(site, t.antenna)) for t in site.transmissions)
+    def __init__(self, total: int, every_s: float = 5.0):
+        import time
+
+        self.total, self.every_s, self.done, self.clock = max(total, 1), every_s, 0, time.monotonic
+        self.start = self.last = self.clock()
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        return False
+
+    def update(self, n: int) -> None:
+        self.done += n
+        now = self.clock()
+        if now - self.last >= self.every_s or self.done >= self.total:
+            self.last = now
+            rate = self.done / max(now - self.start, 1e-9)
+            left = (self.total - self.done) / rate if rate > 0 else float("inf")
+            click.echo(f"near fields: {self.done:,} of {self.total:,} points ({100 * self.done / self.total:.0f} %), "
+                       f"about {left:.0f} s left", err=True)
+
+
+def _progress(total: int, jobs: int, quiet: bool):
+    if quiet:
+        return _Null()
+    if sys.stderr.isatty():
+        return click.progressbar(length=total, label="near fields", file=sys.stderr)
+    click.echo(f"computing near fields: {total:,} points, {jobs} jobs", err=True)
+    return _Lines(total)
 
 
 def _write_all(a, folder: Path) -> None:
@@ -345,8 +405,9 @@ def _summary(a, out: Path) -> None:
 @main.command("check")
 @click.argument("site_file", type=click.Path(dir_okay=False))
 @click.option("--plan", "plan_png", type=click.Path(dir_okay=False), help="draw the plan to this PNG")
+@click.option("--large", is_flag=True, help="check a site beyond the size budget")
 @click.option("--json", "as_json", is_flag=True)
-def check_cmd(site_file, plan_png, as_json):
+def check_cmd(site_file, plan_png, large, as_json):
     """Validate the file and the NEC rules, run the average gain test; no field solve."""
     from . import assess, engine
     from .site import SiteError, load
@@ -361,6 +422,7 @@ def check_cmd(site_file, plan_png, as_json):
             click.echo(f"nfmap: error: {p}", err=True)
         raise InputError(err.problems[-1]) from None
     warns: list[str] = list(site.warnings)
+    est = _budget(site, _default_jobs(None), large, quiet=True)
     ants = []
     for t in site.transmissions:
         _engine_errors(lambda t=t: assess.model_for(site, t.name, warns))
@@ -377,8 +439,12 @@ def check_cmd(site_file, plan_png, as_json):
         from . import maps
 
         maps.save_plan(site, plan_png)
+    jobs = _default_jobs(None)
+    cost = {"field_points": est.field_points, "plan_points": est.plan_points, "segments_max": est.segments_max,
+            "memory_bytes": round(est.memory_bytes), "seconds_estimate": round(est.seconds(jobs), 1), "jobs": jobs,
+            "over_budget": est.over()}
     if as_json:
-        _json({"ok": True, "errors": [], "warnings": warns, "antennas": ants})
+        _json({"ok": True, "errors": [], "warnings": warns, "antennas": ants, "estimate": cost})
         return EXIT_OK
     for w in warns:
         click.echo(f"nfmap: warning: {w}", err=True)
@@ -386,6 +452,9 @@ def check_cmd(site_file, plan_png, as_json):
     for a in ants:
         click.echo(f"  {a['name']}: {a['kind']}, {a['wires']} wires, {a['segments']} segments, "
                    f"AGT {a['agt']:.3f} ({a['agt_db']:+.2f} dB), max gain {a['max_gain_dbi']:.2f} dBi (free space)")
+    click.echo(f"  run estimate: {est.describe(jobs)}")
+    for o in est.over():
+        click.echo(f"  beyond the budget (run needs --large): {o}")
     if plan_png:
         click.echo(f"plan drawn to {plan_png}")
     return EXIT_OK
@@ -483,18 +552,31 @@ def deck_cmd(site_file, name):
 @main.command("demo")
 @click.option("-o", "--output", "out_dir", type=click.Path(file_okay=False), default="nfmap-demo", show_default=True)
 @click.option("--jobs", type=int)
-@click.option("--force", is_flag=True)
+@click.option("--force", is_flag=True, help="replace a demo folder that an earlier demo wrote")
 @click.option("--quiet", is_flag=True)
 def demo_cmd(out_dir, jobs, force, quiet):
     """Write the bundled example site into the output folder and run it."""
     from importlib import resources
 
+    from . import outfolder
+
     out = Path(out_dir)
-    if out.exists() and not force:
-        raise InputError(f"{out} exists; give --force to replace it (or -o another folder)")
-    out.mkdir(parents=True, exist_ok=True)
     site_path = out / "demo.toml"
-    site_path.write_text(resources.files("nfmap").joinpath("examples/demo.toml").read_text())
+    text = resources.files("nfmap").joinpath("examples/demo.toml").read_text()
+    if out.exists():
+        if not force:
+            raise InputError(f"{out} exists; give --force to replace it (or -o another folder)")
+        mine = {"demo.toml", "results"}
+        foreign = sorted(p.name for p in out.iterdir() if p.name not in mine and not p.name.startswith(".results."))
+        if foreign or (out / "results").exists() and not outfolder.is_record(out / "results"):
+            held = ", ".join(foreign) or "a results folder nfmap did not write"
+            raise InputError(f"{out} is not a folder nfmap demo wrote (it holds {held}); --force never deletes other "
+                             "files: give another -o")
+        if site_path.exists() and site_path.read_text() != text:
+            raise InputError(f"{site_path} was edited; --force never overwrites it: run it with "
+                             f"nfmap run {site_path}, or give another -o")
+    out.mkdir(parents=True, exist_ok=True)
+    site_path.write_text(text)
     click.echo(f"example site written to {site_path}")
     site = _load(str(site_path))
     return _run_site(site, out / "results", _default_jobs(jobs), True, quiet)

@@ -31,6 +31,7 @@ import math
 import os
 from collections.abc import Callable, Sequence
 from concurrent.futures import ProcessPoolExecutor
+from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -388,9 +389,15 @@ class Workers:
             )
         return self
 
-    def __exit__(self, *exc) -> None:
+    def __exit__(self, exc_type, *exc) -> None:
         if self._pool is not None:
-            self._pool.shutdown(cancel_futures=True)
+            if exc_type is not None:
+                # stopped (a signal, an error elsewhere): end the workers now rather than finish their chunks
+                for proc in list(getattr(self._pool, "_processes", {}).values()):
+                    proc.terminate()
+                self._pool.shutdown(wait=False, cancel_futures=True)
+            else:
+                self._pool.shutdown(cancel_futures=True)
             self._pool = None
 
     def run(self, fn, tasks: list[tuple], done: Callable[[int], None] | None = None) -> list:
@@ -402,12 +409,16 @@ class Workers:
                 if done:
                     done(len(out) - 1)
             return out
-        futures = [self._pool.submit(fn, *t) for t in tasks]
-        out = []
-        for k, f in enumerate(futures):
-            out.append(f.result())
-            if done:
-                done(k)
+        try:
+            futures = [self._pool.submit(fn, *t) for t in tasks]
+            out = []
+            for k, f in enumerate(futures):
+                out.append(f.result())
+                if done:
+                    done(k)
+        except BrokenProcessPool:
+            raise EngineError("near field", getattr(tasks[0][0], "name", "model"),
+                              "a worker process died (killed, or out of memory); nothing was written") from None
         return out
 
 

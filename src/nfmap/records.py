@@ -1,24 +1,25 @@
-"""The station's records: results.json, fields.npz, exceedance.geojson, and the output folder.
+"""The station's records: results.json, fields.npz, exceedance.geojson.
 
-The folder is written to a temporary sibling and renamed into place, so a record is never left
-half written, and an existing folder is never replaced without ``force``.
+The folder they go in is reserved, written and swapped in by ``outfolder``: a record is never left
+half written, and a folder is replaced only with ``force`` and only if an earlier run wrote it.
 """
 
 from __future__ import annotations
 
 import datetime as dt
+import hashlib
 import json
 import math
-import shutil
-import tempfile
+import re
 from pathlib import Path
 
 import numpy as np
 import shapely
 
-from . import __version__
+from . import __version__, outfolder
 from .assess import AreaResult, Assessment, exceedance_polygons, masked_polygons
 from .exposure import checks, limits
+from .outfolder import OutputExistsError  # noqa: F401  (re-exported)
 
 CAUTIONS = (
     "This is a computer model, not a measurement. Its results are only as good as the inputs "
@@ -32,8 +33,25 @@ CAUTIONS = (
 )
 
 
-class OutputExistsError(FileExistsError):
-    pass
+def _slug(name: str) -> str:
+    return re.sub(r"[^A-Za-z0-9]+", "-", name).strip("-").lower() or "transmission"
+
+
+RESERVED_STEMS = ("combined",)  # map-combined.png is the combined map
+
+
+def map_name(transmission: str, names: tuple[str, ...] | list[str] = ()) -> str:
+    """The map file of a transmission: a readable stem from its name, unique among ``names``.
+
+    A stem that is empty (a name without Latin letters or digits), reserved, or shared with another
+    transmission of ``names`` gets a short suffix from the name's hash, so no map replaces another.
+    """
+    stem = _slug(transmission)
+    stems = [_slug(n) for n in names] if names else [stem]
+    if not re.search(r"[a-z0-9]", re.sub(r"[^A-Za-z0-9]", "", transmission).lower()) or stem in RESERVED_STEMS or \
+            stems.count(stem) > 1:
+        stem = f"{stem}-{hashlib.sha1(transmission.encode()).hexdigest()[:6]}"
+    return f"map-{stem}.png"
 
 
 def _num(v):
@@ -85,6 +103,7 @@ def results_doc(a: Assessment) -> dict:
                 "envelope_power_w": _num(spec.envelope_power_w),
                 "checks": check_rows(site, spec),
                 "governing_check": t.governing_check,
+                "map_file": map_name(t.name, [x.name for x in a.transmissions]),
                 "group": spec.group,
                 "feed_impedance_ohm": [_num(t.feed_impedance_ohm.real), _num(t.feed_impedance_ohm.imag)],
                 "average_power_w": _num(t.average_power_w),
@@ -212,26 +231,9 @@ def fields_arrays(a: Assessment) -> dict[str, np.ndarray]:
 
 
 def write_folder(out_dir: Path, force: bool, write) -> Path:
-    """Write into a temporary folder beside ``out_dir`` via ``write(tmp)``, then rename."""
-    out_dir = Path(out_dir)
-    if out_dir.exists() and not force:
-        raise OutputExistsError(f"{out_dir} exists; give --force to replace it")
-    out_dir.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}-", dir=out_dir.parent))
-    try:
-        write(tmp)
-        if out_dir.exists():
-            old = out_dir.with_name(f".{out_dir.name}-old")
-            shutil.rmtree(old, ignore_errors=True)
-            out_dir.rename(old)
-            tmp.rename(out_dir)
-            shutil.rmtree(old, ignore_errors=True)
-        else:
-            tmp.rename(out_dir)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
-    return out_dir
+    """Reserve ``out_dir`` and write the record into it via ``write(folder)`` (see ``outfolder``)."""
+    with outfolder.reserved(Path(out_dir), force) as res:
+        return res.commit(write)
 
 
 def write_data(a: Assessment, folder: Path) -> None:

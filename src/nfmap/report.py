@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import datetime as dt
 import math
-import re
 import textwrap
 from pathlib import Path
 
@@ -13,18 +12,10 @@ from matplotlib.figure import Figure
 
 from . import __version__, maps
 from .exposure import limits
-from .records import CAUTIONS
+from .records import CAUTIONS, map_name
 
 A4_IN = (8.27, 11.69)
 LINE_IN = 0.19
-
-
-def _slug(name: str) -> str:
-    return re.sub(r"[^A-Za-z0-9]+", "-", name).strip("-").lower() or "transmission"
-
-
-def map_name(transmission: str) -> str:
-    return f"map-{_slug(transmission)}.png"
 
 
 class _Pages:
@@ -113,12 +104,13 @@ def write_maps_and_report(a, folder: Path) -> None:
     caption = maps.caption_text(a)
     wires = maps.wires_of(a.site)
     figs = []
+    names = [t.name for t in a.transmissions]
     for t in a.transmissions:
         title = (f"{t.name}: {t.frequency_mhz:g} MHz, {t.power_w:g} W PEP, {t.average_power_w:.3g} W average\n"
                  f"worst of {' / '.join(CHECK_NAMES[c] for c in t.checks)} at each point; "
                  f"binding: {CHECK_NAMES.get(t.governing_check, '-')}")
         fig = maps.map_figure(a, t.ratio, title, t.crossings, t.areas, caption, wires)
-        fig.savefig(folder / map_name(t.name), dpi=170)
+        fig.savefig(folder / map_name(t.name, names), dpi=170)
         figs.append(fig)
     cfig = maps.map_figure(a, a.combined.ratio, "combined: groups summed check by check; worst check and group",
                            a.combined.crossings,

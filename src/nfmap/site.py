@@ -169,6 +169,34 @@ ANTENNA_REQUIRED = {
 ANTENNA_NUMBERS = {"length_m", "resonant_mhz", "height_m", "heading_deg", "apex_deg", "wire_diameter_mm",
                    "base_height_m", "radial_length_m", "radial_droop_deg", "radial_height_m", "ground_loss_ohm",
                    "feed_height_m", "far_height_m", "counterpoise_m", "design_mhz", "element_diameter_mm"}
+# Plausible ranges for a property (refused outside, with the reason): what a site file can mean.
+SITE_EXTENT_M = 10_000.0  # coordinates and positions: within 10 km of the site origin
+HEIGHT_MAX_M = 500.0  # antenna heights and floors
+RANGES = {
+    # key: (lo, hi, why)
+    "length_m": (0, 5000, "an antenna of at most 5 km"),
+    "radial_length_m": (0, 5000, "a radial of at most 5 km"),
+    "counterpoise_m": (0, 5000, "a counterpoise of at most 5 km"),
+    "resonant_mhz": (0.003, 300_000, "a frequency the standards cover (3 kHz to 300 GHz)"),
+    "design_mhz": (0.003, 300_000, "a frequency the standards cover (3 kHz to 300 GHz)"),
+    "height_m": (0, HEIGHT_MAX_M, "a height above ground of at most 500 m"),
+    "base_height_m": (0, HEIGHT_MAX_M, "a height above ground of at most 500 m"),
+    "feed_height_m": (0, HEIGHT_MAX_M, "a height above ground of at most 500 m"),
+    "far_height_m": (0, HEIGHT_MAX_M, "a height above ground of at most 500 m"),
+    "radial_height_m": (0, HEIGHT_MAX_M, "a height above ground of at most 500 m"),
+    "radial_droop_deg": (0, 90, "an angle below the horizontal from 0 to 90 degrees"),
+    "apex_deg": (0, 180, "an apex angle from 0 (exclusive) to 180 degrees (flat top)"),
+    "wire_diameter_mm": (0, 1000, "a conductor diameter of at most 1 m"),
+    "element_diameter_mm": (0, 1000, "a conductor diameter of at most 1 m"),
+    "ground_loss_ohm": (0, 10_000, "a loss resistance of at most 10 kohm"),
+}
+BODY_MAX_M = 3.0  # a body line above 3 m is no standing person (180 would be centimetres typed as metres)
+POWER_MAX_W = 10e6  # a transmitter of at most 10 MW PEP
+LOSS_MAX_DB = 30.0  # a feedline loss above 30 dB cannot be meant (and would hide the exposure)
+RESERVED_AREA = "elsewhere"  # the record's name for the ground outside every area
+NAME_MAX = 80  # characters in an area, line, antenna or transmission name
+MAX_VERTICES = 10_000  # points of one polygon or line
+
 POSITIVE = {"length_m", "resonant_mhz", "wire_diameter_mm", "radial_length_m", "radial_height_m", "feed_height_m",
             "far_height_m", "counterpoise_m", "design_mhz", "element_diameter_mm", "height_m"}
 
@@ -193,6 +221,26 @@ class _Checker:
                 self.problems.append(f"{self.path}: {where}.{k}: unknown key{hint}; allowed: {', '.join(sorted(allowed))}")
         return True
 
+    def name(self, table: dict, where: str) -> str | None:
+        """A required name of at most ``NAME_MAX`` characters."""
+        nm = self.text(table, "name", where, required=True)
+        if nm is not None and len(nm) > NAME_MAX:
+            self.bad(f"{where}.name", nm[:40] + "...", f"a name of at most {NAME_MAX} characters")
+            return None
+        return nm
+
+    def xyz(self, v: Any, key: str, z_range: tuple[float, float] | None = None) -> tuple | None:
+        """[x, y, z] in metres, finite, within the site's extent."""
+        ok = isinstance(v, list) and len(v) == 3 and all(
+            isinstance(x, NUM) and not isinstance(x, bool) and math.isfinite(x) for x in v)
+        if not ok or max(abs(v[0]), abs(v[1])) > SITE_EXTENT_M:
+            self.bad(key, v, f"[x, y, z] in metres, finite, |x| and |y| <= {SITE_EXTENT_M:g}")
+            return None
+        if z_range and not z_range[0] <= v[2] <= z_range[1]:
+            self.bad(key, v, f"z from {z_range[0]:g} to {z_range[1]:g} m above ground")
+            return None
+        return tuple(float(x) for x in v)
+
     def num(self, table: dict, key: str, where: str, default=None, lo=None, hi=None, lo_open=False, required=False):
         if key not in table:
             if required:
@@ -206,7 +254,7 @@ class _Checker:
             self.bad(f"{where}.{key}", v, f"a number {'>' if lo_open else '>='} {lo:g}" + (f" and <= {hi:g}" if hi is not None else ""))
             return default
         if hi is not None and v > hi:
-            self.bad(f"{where}.{key}", v, f"a number <= {hi:g}")
+            self.bad(f"{where}.{key}", v, (f"a number >= {lo:g} and " if lo is not None else "a number ") + f"<= {hi:g}")
             return default
         return float(v)
 
@@ -228,12 +276,15 @@ class _Checker:
 
     def points(self, table: dict, key: str, where: str, min_points: int) -> tuple | None:
         v = table.get(key)
-        ok = isinstance(v, list) and len(v) >= min_points and all(
-            isinstance(p, list) and len(p) == 2 and all(isinstance(c, NUM) and not isinstance(c, bool) and math.isfinite(c) for c in p)
+        ok = isinstance(v, list) and min_points <= len(v) <= MAX_VERTICES and all(
+            isinstance(p, list) and len(p) == 2
+            and all(isinstance(c, NUM) and not isinstance(c, bool) and math.isfinite(c) and abs(c) <= SITE_EXTENT_M
+                    for c in p)
             for p in v
         )
         if not ok:
-            self.bad(f"{where}.{key}", v, f"a list of at least {min_points} [x, y] pairs in metres")
+            self.bad(f"{where}.{key}", v, f"a list of {min_points} to {MAX_VERTICES} [x, y] pairs in metres, "
+                     f"finite, within {SITE_EXTENT_M:g} m of the origin")
             return None
         return tuple((float(x), float(y)) for x, y in v)
 
@@ -250,7 +301,12 @@ def load(path: str | Path) -> Site:
         doc = tomllib.loads(raw.decode("utf-8"))
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as err:
         raise SiteError([f"{name}: not a valid TOML file: {err}"]) from None
-    return parse(doc, name, hashlib.sha256(raw).hexdigest())
+    except RecursionError:
+        raise SiteError([f"{name}: not a valid site file: arrays or tables nested too deeply"]) from None
+    try:
+        return parse(doc, name, hashlib.sha256(raw).hexdigest())
+    except RecursionError:
+        raise SiteError([f"{name}: not a valid site file: arrays or tables nested too deeply"]) from None
 
 
 def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
@@ -273,8 +329,8 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
     gnd = None
     if c.keys(g, GROUND_KEYS, "ground"):
         if "permittivity" in g or "conductivity_s_per_m" in g:
-            eps = c.num(g, "permittivity", "ground", lo=1, required=True)
-            sig = c.num(g, "conductivity_s_per_m", "ground", lo=0, required=True)
+            eps = c.num(g, "permittivity", "ground", lo=1, hi=100, required=True)  # water ~80
+            sig = c.num(g, "conductivity_s_per_m", "ground", lo=0, hi=100, required=True)  # sea water ~5 S/m
             if "kind" in g:
                 c.bad("ground.kind", g["kind"], "omit kind when permittivity and conductivity_s_per_m are given")
             if eps is not None and sig is not None:
@@ -286,10 +342,10 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
     gr = doc.get("grid", {})
     grid = None
     if c.keys(gr, GRID_KEYS, "grid"):
-        spacing = c.num(gr, "spacing_m", "grid", 0.5, lo=0, lo_open=True)
-        margin = c.num(gr, "margin_m", "grid", 5.0, lo=0)
-        b_from = c.num(gr, "body_from_m", "grid", BODY_FROM_M, lo=0)
-        b_to = c.num(gr, "body_to_m", "grid", BODY_TO_M, lo=0)
+        spacing = c.num(gr, "spacing_m", "grid", 0.5, lo=0, lo_open=True, hi=10)
+        margin = c.num(gr, "margin_m", "grid", 5.0, lo=0, hi=200)
+        b_from = c.num(gr, "body_from_m", "grid", BODY_FROM_M, lo=0, hi=BODY_MAX_M)
+        b_to = c.num(gr, "body_to_m", "grid", BODY_TO_M, lo=0, hi=BODY_MAX_M)
         n = gr.get("body_points", BODY_POINTS)
         if isinstance(n, bool) or not isinstance(n, int) or not 1 <= n <= 50:
             c.bad("grid.body_points", n, "a whole number from 1 to 50")
@@ -308,10 +364,14 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
         where = f"area[{i + 1}]"
         if not c.keys(a, AREA_KEYS, where):
             continue
-        nm = c.text(a, "name", where, required=True)
+        nm = c.name(a, where)
+        if nm is not None and nm.strip().lower() == RESERVED_AREA:
+            c.bad(f"{where}.name", nm, f"any name but {RESERVED_AREA!r}, which the record uses for the ground outside "
+                  "every area")
+            nm = None
         poly = c.points(a, "polygon", where, 3)
         tier = c.text(a, "exposure", where, "public", choices=TIERS)
-        floor = c.num(a, "floor_m", where, 0.0, lo=0)
+        floor = c.num(a, "floor_m", where, 0.0, lo=0, hi=HEIGHT_MAX_M)
         if poly is not None:
             shp = shapely.Polygon(poly)
             if not shp.is_valid or shp.area <= 0:
@@ -320,21 +380,14 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
         if nm and poly and tier is not None and floor is not None:
             area_list.append(Area(nm, poly, tier, floor))
     _unique(c, [a.name for a in area_list], "area")
-    for i, a in enumerate(area_list):
-        for b in area_list[i + 1 :]:
-            if a.floor_m == b.floor_m and a.exposure != b.exposure and a.shape.intersection(b.shape).area > 1e-9:
-                strict = a if STRICTNESS[a.exposure] < STRICTNESS[b.exposure] else b
-                notes.append(
-                    f"areas {a.name!r} ({a.exposure}) and {b.name!r} ({b.exposure}) overlap; "
-                    f"the stricter tier ({strict.exposure}) applies where they overlap"
-                )
+    notes += _overlap_notes(area_list)
 
     line_list: list[Line] = []
     for i, ln in enumerate(_tables(c, doc, "line")):
         where = f"line[{i + 1}]"
         if not c.keys(ln, LINE_KEYS, where):
             continue
-        nm = c.text(ln, "name", where, required=True)
+        nm = c.name(ln, where)
         pts = c.points(ln, "points", where, 2)
         if nm and pts:
             line_list.append(Line(nm, pts))
@@ -349,10 +402,12 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
         kind = c.text(a, "kind", where, choices=tuple(antennas.BUILDERS), required=True)
         allowed = {"name", "kind", "position_m"} | ANTENNA_KEYS.get(kind, set())
         c.keys(a, allowed, where)
-        nm = c.text(a, "name", where, required=True)
+        nm = c.name(a, where)
         pos = a.get("position_m")
-        if not (isinstance(pos, list) and len(pos) == 2 and all(isinstance(v, NUM) and not isinstance(v, bool) for v in pos)):
-            c.bad(f"{where}.position_m", pos, "[x, y] in metres")
+        if not (isinstance(pos, list) and len(pos) == 2
+                and all(isinstance(v, NUM) and not isinstance(v, bool) and math.isfinite(v) and abs(v) <= SITE_EXTENT_M
+                        for v in pos)):
+            c.bad(f"{where}.position_m", pos, f"[x, y] in metres, finite, within {SITE_EXTENT_M:g} m of the origin")
             pos = None
         if kind is None:
             continue
@@ -370,7 +425,12 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
                     c.bad(f"{where}.{k}", v, f"a whole number from {low} to 64")
                     continue
             if k in ANTENNA_NUMBERS and not (k == "heading_deg" and v == "any"):
-                v = c.num(a, k, where, lo=0 if k in POSITIVE else None, lo_open=k in POSITIVE)
+                lo, hi, why = RANGES.get(k, (0 if k in POSITIVE else None, None, ""))
+                v = c.num(a, k, where, lo=lo, hi=hi, lo_open=k in POSITIVE or k == "apex_deg")
+                if v is None:
+                    continue
+            if k in ("element", "wire", "feed"):
+                v = _nested(c, k, v, where)
                 if v is None:
                     continue
             params[k] = v
@@ -388,14 +448,14 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
         where = f"transmission[{i + 1}]"
         if not c.keys(t, TX_KEYS, where):
             continue
-        nm = c.text(t, "name", where, required=True)
+        nm = c.name(t, where)
         ant = c.text(t, "antenna", where, required=True)
         if ant is not None and ant_list and ant not in ant_names:
             near = difflib.get_close_matches(ant, ant_names, n=1)
             hint = f" (did you mean {near[0]!r}?)" if near else ""
             c.problems.append(f"{name}: {where}.antenna: no antenna named {ant!r}{hint}; allowed: {', '.join(ant_names)}")
         f = c.num(t, "frequency_mhz", where, lo=0, lo_open=True, required=True)
-        pw = c.num(t, "power_w", where, lo=0, lo_open=True, required=True)
+        pw = c.num(t, "power_w", where, lo=0, lo_open=True, hi=POWER_MAX_W, required=True)
         mode = c.text(t, "mode", where, choices=tuple(averaging.MODES))
         duty = c.num(t, "duty_factor", where, lo=0, lo_open=True, hi=1)
         if mode is None and duty is None and "mode" not in t and "duty_factor" not in t:
@@ -411,7 +471,7 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
                   f"a share >= transmit_fraction ({frac:g}): the worst 6 minutes of a 30-minute window are at least "
                   "as busy as the window's average")
             frac6 = None
-        loss = c.num(t, "feedline_loss_db", where, 0.0, lo=0)
+        loss = c.num(t, "feedline_loss_db", where, 0.0, lo=0, hi=LOSS_MAX_DB)
         grp = c.text(t, "group", where)
         if standard and f is not None:
             for tier in ("public", "occupational"):
@@ -449,10 +509,90 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
             problems.append(f"{name}: antenna: {err}")
     if problems:
         raise SiteError(problems)
-    notes += _body_line_notes(site)
+    notes += _body_line_notes(site) + _far_antenna_notes(site, built)
     for n in notes:
         warnings.warn(n, SiteWarning, stacklevel=2)
     return site
+
+
+NESTED_KEYS = {
+    "element": ({"length_m", "offset_m"}, {"length_m", "offset_m"}),
+    "wire": ({"from_m", "to_m", "diameter_mm"}, {"from_m", "to_m"}),
+    "feed": ({"wire", "at"}, {"wire"}),
+}
+
+
+def _nested(c: _Checker, key: str, v: Any, where: str) -> Any:
+    """Check the nested tables of a builder (``element``, ``wire``, ``feed``): known keys, numbers, ranges."""
+    allowed, required = NESTED_KEYS[key]
+    rows = [v] if key == "feed" else v
+    if key == "feed" and not isinstance(v, dict):
+        c.bad(f"{where}.feed", v, "a table {wire = N, at = 0.0..1.0}")
+        return None
+    if key != "feed" and (not isinstance(v, list) or not v or len(v) > 500):
+        c.bad(f"{where}.{key}", v, f"an array of 1 to 500 tables {{{', '.join(sorted(allowed))}}}")
+        return None
+    ok = True
+    for i, row in enumerate(rows):
+        at = f"{where}.{key}" if key == "feed" else f"{where}.{key}[{i + 1}]"
+        if not c.keys(row, allowed, at):
+            ok = False
+            continue
+        for r in sorted(required - set(row)):
+            c.problems.append(f"{c.path}: {at}.{r}: missing; allowed: {', '.join(sorted(allowed))}")
+            ok = False
+        if key == "element":
+            ok &= c.num(row, "length_m", at, lo=0, lo_open=True, hi=1000) is not None
+            ok &= c.num(row, "offset_m", at, lo=-1000, hi=1000) is not None
+        elif key == "wire":
+            for end in ("from_m", "to_m"):
+                if end in row:
+                    ok &= c.xyz(row[end], f"{at}.{end}", (-HEIGHT_MAX_M, HEIGHT_MAX_M)) is not None
+            if "diameter_mm" in row:
+                ok &= c.num(row, "diameter_mm", at, lo=0, lo_open=True, hi=1000) is not None
+        else:
+            n = row.get("wire")
+            if isinstance(n, bool) or not isinstance(n, int) or n < 1:
+                c.bad(f"{at}.wire", n, "a wire number counting from 1")
+                ok = False
+            if "at" in row:
+                ok &= c.num(row, "at", at, lo=0, hi=1) is not None
+    return v if ok else None
+
+
+def _overlap_notes(areas: list[Area]) -> list[str]:
+    """Areas of different tiers on one floor that overlap (a spatial index: fast for many areas)."""
+    notes = []
+    shapes = [a.shape for a in areas]
+    tree = shapely.STRtree(shapes)
+    left, right = tree.query(shapes, predicate="intersects")
+    for i, j in zip(left.tolist(), right.tolist(), strict=True):
+        a, b = areas[i], areas[j]
+        if i < j and a.floor_m == b.floor_m and a.exposure != b.exposure and shapes[i].intersection(shapes[j]).area > 1e-9:
+            strict = a if STRICTNESS[a.exposure] < STRICTNESS[b.exposure] else b
+            notes.append(
+                f"areas {a.name!r} ({a.exposure}) and {b.name!r} ({b.exposure}) overlap; "
+                f"the stricter tier ({strict.exposure}) applies where they overlap"
+            )
+    return notes
+
+
+FAR_ANTENNA_M = 100.0
+
+
+def _far_antenna_notes(site: Site, built: list[Structure]) -> list[str]:
+    """An antenna far from every area grows the lattice to reach it: say so (the budget may refuse the run)."""
+    if not site.areas:
+        return []
+    where = shapely.union_all([a.shape for a in site.areas])
+    out = []
+    for s in built:
+        track = shapely.MultiPoint([p[:2] for w in s.wires for p in (w.start_m, w.end_m)])
+        d = track.distance(where)
+        if d > FAR_ANTENNA_M:
+            out.append(f"antenna {s.name!r} is {d:.0f} m from the nearest area; the lattice grows to cover it "
+                       "(check its position_m: site metres, x east, y north)")
+    return out
 
 
 def _body_line_notes(site: Site) -> list[str]:
