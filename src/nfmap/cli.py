@@ -80,6 +80,12 @@ class _Group(click.Group):
         except click.Abort:
             click.echo("nfmap: aborted", err=True)
             sys.exit(130)
+        except Exception as err:  # never a traceback for the user; NFMAP_DEBUG=1 shows it
+            if os.environ.get("NFMAP_DEBUG"):
+                raise
+            click.echo(f"nfmap: internal error (a bug: please report it with the site file): "
+                       f"{type(err).__name__}: {err}", err=True)
+            sys.exit(EXIT_ENGINE)
         sys.exit(rv if isinstance(rv, int) else EXIT_OK)
 
 

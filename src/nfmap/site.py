@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import shapely
 
 import antennas
@@ -241,7 +242,8 @@ class _Checker:
             return None
         return tuple(float(x) for x in v)
 
-    def num(self, table: dict, key: str, where: str, default=None, lo=None, hi=None, lo_open=False, required=False):
+    def num(self, table: dict, key: str, where: str, default=None, lo=None, hi=None, lo_open=False, required=False,
+            why: str = ""):
         if key not in table:
             if required:
                 self.problems.append(f"{self.path}: {where}.{key}: missing; allowed: a number")
@@ -254,7 +256,8 @@ class _Checker:
             self.bad(f"{where}.{key}", v, f"a number {'>' if lo_open else '>='} {lo:g}" + (f" and <= {hi:g}" if hi is not None else ""))
             return default
         if hi is not None and v > hi:
-            self.bad(f"{where}.{key}", v, (f"a number >= {lo:g} and " if lo is not None else "a number ") + f"<= {hi:g}")
+            self.bad(f"{where}.{key}", v, (f"a number >= {lo:g} and " if lo is not None else "a number ")
+                     + f"<= {hi:g}" + (f" ({why})" if why else ""))
             return default
         return float(v)
 
@@ -344,8 +347,9 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
     if c.keys(gr, GRID_KEYS, "grid"):
         spacing = c.num(gr, "spacing_m", "grid", 0.5, lo=0, lo_open=True, hi=10)
         margin = c.num(gr, "margin_m", "grid", 5.0, lo=0, hi=200)
-        b_from = c.num(gr, "body_from_m", "grid", BODY_FROM_M, lo=0, hi=BODY_MAX_M)
-        b_to = c.num(gr, "body_to_m", "grid", BODY_TO_M, lo=0, hi=BODY_MAX_M)
+        body_why = "metres above the floor: a standing person is about 2 m tall; 180 would be centimetres"
+        b_from = c.num(gr, "body_from_m", "grid", BODY_FROM_M, lo=0, hi=BODY_MAX_M, why=body_why)
+        b_to = c.num(gr, "body_to_m", "grid", BODY_TO_M, lo=0, hi=BODY_MAX_M, why=body_why)
         n = gr.get("body_points", BODY_POINTS)
         if isinstance(n, bool) or not isinstance(n, int) or not 1 <= n <= 50:
             c.bad("grid.body_points", n, "a whole number from 1 to 50")
@@ -426,7 +430,7 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
                     continue
             if k in ANTENNA_NUMBERS and not (k == "heading_deg" and v == "any"):
                 lo, hi, why = RANGES.get(k, (0 if k in POSITIVE else None, None, ""))
-                v = c.num(a, k, where, lo=lo, hi=hi, lo_open=k in POSITIVE or k == "apex_deg")
+                v = c.num(a, k, where, lo=lo, hi=hi, lo_open=k in POSITIVE or k == "apex_deg", why=why)
                 if v is None:
                     continue
             if k in ("element", "wire", "feed"):
@@ -563,7 +567,9 @@ def _nested(c: _Checker, key: str, v: Any, where: str) -> Any:
 def _overlap_notes(areas: list[Area]) -> list[str]:
     """Areas of different tiers on one floor that overlap (a spatial index: fast for many areas)."""
     notes = []
-    shapes = [a.shape for a in areas]
+    if len(areas) < 2:
+        return notes
+    shapes = np.array([a.shape for a in areas], dtype=object)
     tree = shapely.STRtree(shapes)
     left, right = tree.query(shapes, predicate="intersects")
     for i, j in zip(left.tolist(), right.tolist(), strict=True):
@@ -574,6 +580,9 @@ def _overlap_notes(areas: list[Area]) -> list[str]:
                 f"areas {a.name!r} ({a.exposure}) and {b.name!r} ({b.exposure}) overlap; "
                 f"the stricter tier ({strict.exposure}) applies where they overlap"
             )
+    if len(notes) > 5:
+        notes = [*notes[:3], f"... and {len(notes) - 3} more pairs of areas of different tiers overlap; the stricter "
+                 "tier applies where they do"]
     return notes
 
 
