@@ -317,3 +317,14 @@ def test_results_json_of_a_record_lists_its_files(tmp_path):
     rec = _record(tmp_path / "rec")
     doc = json.loads((rec / outfolder.MANIFEST).read_text())
     assert doc["files"] == ["results.json"] and doc["tool"] == "nfmap"
+
+
+def test_unusual_values_are_warned(tmp_path):
+    text = (Path(__file__).parent / "broken" / "unknown-mode.toml").read_text()
+    text = text.replace('mode = "psk"', 'mode = "cw"\nfeedline_loss_db = 12').replace("power_w = 100", "power_w = 0.4")
+    p = tmp_path / "odd.toml"
+    p.write_text(text)
+    with pytest.warns(site.SiteWarning) as got:
+        site.load(p)
+    said = " ".join(str(w.message) for w in got)
+    assert "power_w = 0.4 W PEP is unusual" in said and "feedline_loss_db = 12 dB" in said

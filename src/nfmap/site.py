@@ -513,7 +513,7 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
             problems.append(f"{name}: antenna: {err}")
     if problems:
         raise SiteError(problems)
-    notes += _body_line_notes(site) + _far_antenna_notes(site, built)
+    notes += _body_line_notes(site) + _far_antenna_notes(site, built) + _unusual_notes(site)
     for n in notes:
         warnings.warn(n, SiteWarning, stacklevel=2)
     return site
@@ -584,6 +584,30 @@ def _overlap_notes(areas: list[Area]) -> list[str]:
         notes = [*notes[:3], f"... and {len(notes) - 3} more pairs of areas of different tiers overlap; the stricter "
                  "tier applies where they do"]
     return notes
+
+
+def _unusual_notes(site: Site) -> list[str]:
+    """Values allowed but unusual for a small station's property: said, so a typing slip is seen."""
+    out = []
+    for t in site.transmissions:
+        if t.power_w > 15_000 or t.power_w < 1:
+            out.append(f"transmission {t.name!r}: power_w = {t.power_w:g} W PEP is unusual for a small station "
+                       "(PEP at the transmitter output, in watts)")
+        if t.feedline_loss_db > 10:
+            out.append(f"transmission {t.name!r}: feedline_loss_db = {t.feedline_loss_db:g} dB is unusually high; "
+                       "the loss lowers every result (the default 0 dB is the conservative choice)")
+    for a in site.antennas:
+        for k in ("height_m", "feed_height_m", "far_height_m", "base_height_m"):
+            v = a.param(k)
+            if isinstance(v, float) and v > 100:
+                out.append(f"antenna {a.name!r}: {k} = {v:g} m is unusually high for a small station")
+    for a in site.areas:
+        if a.floor_m > 60:
+            out.append(f"area {a.name!r}: floor_m = {a.floor_m:g} m is unusually high (metres above the ground)")
+    if site.grid.spacing_m > 2:
+        out.append(f"grid.spacing_m = {site.grid.spacing_m:g} m is coarse: peaks between lattice points may be "
+                   "missed (0.5 m or less is usual)")
+    return out
 
 
 FAR_ANTENNA_M = 100.0
