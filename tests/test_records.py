@@ -12,6 +12,7 @@ from pypdf import PdfReader
 
 from nfmap import assess, records, report
 
+from .record_text import disagreements
 from .test_assess import free_dipole_site
 
 EXAMPLES = sorted(p.name for p in resources.files("nfmap").joinpath("examples").iterdir() if p.name.endswith(".toml"))
@@ -80,6 +81,21 @@ def test_report_pages_and_texts(written):
     assert (out / report.map_name("t")).stat().st_size > 20_000 and (out / "map-combined.png").exists()
 
 
+def test_report_text_agrees_with_its_figures(written):
+    _, out = written
+    assert disagreements(out) == []
+
+
+@pytest.mark.parametrize("example", ["balcony.toml", "inverted-v.toml"])
+def test_small_examples_report_agrees_with_results(example, tmp_path):
+    # the two quickest examples in the default run; every example in the slow run
+    path = Path(resources.files("nfmap").joinpath("examples", example))
+    r = subprocess.run([sys.executable, "-m", "nfmap", "run", str(path), "-o", str(tmp_path / "o"), "--quiet"],
+                       capture_output=True, text=True, timeout=600)
+    assert r.returncode in (0, 1), r.stderr
+    assert disagreements(tmp_path / "o") == []
+
+
 def test_existing_record_is_never_replaced_without_force(written):
     _, out = written
     with pytest.raises(records.OutputExistsError):
@@ -104,6 +120,7 @@ def test_every_example_runs_and_renders(example, tmp_path):
         assert f"Transmission: {t['name']}" in text
     for area in doc["areas"]:
         assert area["name"] in text
+    assert disagreements(tmp_path / "o") == []
     # every area of every transmission names the check that governs it, in results.json and in the summary
     for t in doc["transmissions"]:
         for name, ratio in t["max_ratio_by_area"].items():

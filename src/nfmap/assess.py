@@ -82,10 +82,13 @@ class AreaResult:
     masked_points: int
     check: str | None = None
     by_check: tuple[tuple[str, float | None], ...] = ()
+    covered_by: tuple[str, ...] = ()  # no point of its own: stricter overlapping areas take all of it
+    empty: bool = False  # no lattice point falls inside it: not assessed (refine grid.spacing_m)
 
     @property
     def over(self) -> bool:
-        return self.exposure != "none" and ((self.max_ratio or 0.0) >= 1.0 or self.masked_points > 0)
+        """Over its limit, or not shown within it (masked points, or too small for the lattice)."""
+        return self.exposure != "none" and ((self.max_ratio or 0.0) >= 1.0 or self.masked_points > 0 or self.empty)
 
 
 @dataclass(frozen=True)
@@ -507,9 +510,16 @@ def area_results(site: Site, pl: Plan, levels: list[Judged]) -> tuple[AreaResult
         k = by_floor.get(a.floor_m)
         groups.append((a.name, a.exposure, k, None if k is None else pl.levels[k].area_index == i))
     groups.append((ELSEWHERE, "public", 0, pl.ground.area_index == -1))
-    for name, tier, k, sel in groups:
+    for gi, (name, tier, k, sel) in enumerate(groups):
         if k is None or not sel.any():
-            out.append(AreaResult(name, tier, None, None, None, 0.0, 0))
+            covered: tuple[str, ...] = ()
+            if gi < len(site.areas) and k is not None:
+                a = site.areas[gi]
+                inside = shapely.contains_xy(a.shape, xx, yy) | shapely.intersects_xy(a.shape.boundary, xx, yy)
+                idx = pl.levels[k].area_index[inside]
+                covered = tuple(dict.fromkeys(site.areas[int(i)].name for i in idx if i >= 0))
+            out.append(AreaResult(name, tier, None, None, None, 0.0, 0, covered_by=covered,
+                                  empty=not covered and name != ELSEWHERE))
             continue
         j = levels[k]
         vals = np.where(sel, j.ratio, np.nan)

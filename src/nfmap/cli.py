@@ -392,7 +392,14 @@ def _summary(a, out: Path) -> None:
         click.echo(f"  {t.name} ({t.frequency_mhz:g} MHz, {t.average_power_w:.1f} W average; checks "
                    f"{', '.join(t.checks)}): power ceiling alone {ceiling}")
         for ar in t.areas:
-            if ar.exposure == "none" or ar.max_ratio is None:
+            if ar.exposure == "none":
+                continue
+            if ar.max_ratio is None:
+                why = (f"judged with {', '.join(ar.covered_by)} (stricter tier)" if ar.covered_by else
+                       "no lattice point inside it: not assessed" if ar.empty else
+                       f"all {ar.masked_points} points too close to a wire")
+                flag = "-" if ar.covered_by else "not shown"
+                click.echo(f"    {ar.name:<28} {flag:<9} {why}")
                 continue
             flag = "OVER" if ar.max_ratio >= 1 else ("not shown" if ar.masked_points else "ok")
             masked = f", {ar.masked_points} points too close to a wire (not shown compliant)" if ar.masked_points else ""
@@ -452,7 +459,7 @@ def check_cmd(site_file, plan_png, large, as_json):
     if as_json:
         _json({"ok": True, "errors": [], "warnings": warns, "antennas": ants, "estimate": cost})
         return EXIT_OK
-    for w in warns:
+    for w in warns[len(site.warnings):]:  # the site file's own warnings were shown as it was read
         click.echo(f"nfmap: warning: {w}", err=True)
     click.echo(f"{site.path}: valid ({len(site.antennas)} antennas, {len(site.transmissions)} transmissions)")
     for a in ants:

@@ -86,8 +86,15 @@ def _fmt(v, spec=".3g", none="-"):
 def verdict_sentence(area, over_word="OVER THE LIMIT") -> str:
     if area.exposure == "none":
         return f"{area.name}: not accessible (not judged)."
+    if area.covered_by:
+        return (f"{area.name}: judged as part of {', '.join(repr(n) for n in area.covered_by)}, whose stricter tier "
+                "applies wherever areas overlap (see there).")
+    if area.empty:
+        return (f"{area.name}: NOT ASSESSED: no lattice point falls inside it; not shown within limit (make "
+                "grid.spacing_m smaller than the area).")
     if area.max_ratio is None:
-        return f"{area.name}: every point too close to a wire for the model; not shown compliant."
+        return (f"{area.name}: every point lies too close to a wire for the model "
+                f"({_count(area.masked_points, 'plan point')}); not shown within limit.")
     x, y = area.where_m
     state = over_word if area.max_ratio >= 1 else ("not shown within limit" if area.masked_points else "within limit")
     by = f" ({CHECK_NAMES.get(area.check, area.check)} check)" if area.check else ""
@@ -96,8 +103,15 @@ def verdict_sentence(area, over_word="OVER THE LIMIT") -> str:
     if area.max_ratio >= 1:
         text += f", {area.exceedance_area_m2:.1f} m^2 at or above the limit"
     if area.masked_points:
-        text += f"; {area.masked_points} plan points lie too close to a wire for the model and are not shown compliant"
+        text += (f"; {_count(area.masked_points, 'plan point')} {'lies' if area.masked_points == 1 else 'lie'} too "
+                 "close to a wire for the model and " + ("is" if area.masked_points == 1 else "are") + " not shown "
+                 "within limit")
     return text + "."
+
+
+def _count(n: int, word: str) -> str:
+    """'1 plan point', '3 plan points'."""
+    return f"{n} {word}" if n == 1 else f"{n} {word}s"
 
 
 def write_maps_and_report(a, folder: Path) -> None:
