@@ -437,8 +437,15 @@ def check_cmd(site_file, plan_png, large, as_json):
     warns: list[str] = list(site.warnings)
     est = _budget(site, _default_jobs(None), large, quiet=True)
     ants = []
+    txs = []
     for t in site.transmissions:
-        _engine_errors(lambda t=t: assess.model_for(site, t.name, warns))
+        model = _engine_errors(lambda t=t: assess.model_for(site, t.name, warns))
+        z = _engine_errors(lambda m=model: engine.solve(m)).feed_impedance_ohm
+        txs.append({"name": t.name, "frequency_mhz": t.frequency_mhz, "feed_impedance_ohm": [z.real, z.imag]})
+        design = _design_mhz(site.antenna(t.antenna))
+        if design and abs(t.frequency_mhz - design) > 0.1 * design:
+            warns.append(f"transmission {t.name!r}: {t.frequency_mhz:g} MHz into {t.antenna!r}, designed for "
+                         f"{design:g} MHz; feed impedance {_z_text(z)}: check the antenna and the frequency")
     for spec in site.antennas:
         s = assess._structure(site, spec.name, assess.highest_any(site))
         f = max(tr.frequency_mhz for tr in site.transmissions if tr.antenna == spec.name) if any(
@@ -447,7 +454,8 @@ def check_cmd(site_file, plan_png, large, as_json):
         if abs(10 * math.log10(agt)) > 0.2:
             warns.append(f"antenna {spec.name!r}: average gain test {agt:.3f} ({10 * math.log10(agt):+.2f} dB), beyond 0.2 dB")
         ants.append({"name": spec.name, "kind": spec.kind, "wires": len(s.wires), "segments": s.segment_count,
-                     "agt": round(agt, 4), "agt_db": round(10 * math.log10(agt), 3), "max_gain_dbi": round(gain, 2)})
+                     "agt": round(agt, 4), "agt_db": round(10 * math.log10(agt), 3), "max_gain_dbi": round(gain, 2),
+                     "trimmed_length_m": round(spec.trim.length_m, 4) if spec.trim else None})
     if plan_png:
         from . import maps
 
@@ -457,7 +465,7 @@ def check_cmd(site_file, plan_png, large, as_json):
             "memory_bytes": round(est.memory_bytes), "seconds_estimate": round(est.seconds(jobs), 1), "jobs": jobs,
             "over_budget": est.over()}
     if as_json:
-        _json({"ok": True, "errors": [], "warnings": warns, "antennas": ants, "estimate": cost})
+        _json({"ok": True, "errors": [], "warnings": warns, "antennas": ants, "transmissions": txs, "estimate": cost})
         return EXIT_OK
     for w in warns[len(site.warnings):]:  # the site file's own warnings were shown as it was read
         click.echo(f"nfmap: warning: {w}", err=True)
@@ -465,12 +473,31 @@ def check_cmd(site_file, plan_png, large, as_json):
     for a in ants:
         click.echo(f"  {a['name']}: {a['kind']}, {a['wires']} wires, {a['segments']} segments, "
                    f"AGT {a['agt']:.3f} ({a['agt_db']:+.2f} dB), max gain {a['max_gain_dbi']:.2f} dBi (free space)")
+    for spec in site.antennas:
+        if spec.trim:
+            tr = spec.trim
+            click.echo(f"  {spec.name}: resonant_mhz {tr.resonant_mhz:g} trimmed in the model to length_m "
+                       f"{tr.length_m:.3f} (rule of thumb {tr.rule_length_m:.3f}; alone {_z_text(tr.feed_impedance_ohm)})")
+    for t in txs:
+        click.echo(f"  {t['name']}: {t['frequency_mhz']:g} MHz, feed impedance "
+                   f"{_z_text(complex(*t['feed_impedance_ohm']))} (with the other antennas passive)")
     click.echo(f"  run estimate: {est.describe(jobs)}")
     for o in est.over():
         click.echo(f"  beyond the budget (run needs --large): {o}")
     if plan_png:
         click.echo(f"plan drawn to {plan_png}")
     return EXIT_OK
+
+
+def _z_text(z: complex) -> str:
+    return f"{z.real:.1f} {'+' if z.imag >= 0 else '-'} j{abs(z.imag):.1f} ohm"
+
+
+def _design_mhz(spec) -> float | None:
+    """The frequency an antenna is built for, where its file says one."""
+    if spec.trim:
+        return spec.trim.resonant_mhz
+    return spec.param("resonant_mhz") or spec.param("design_mhz")
 
 
 @main.command("probe")

@@ -166,7 +166,10 @@ def write_report(a, path: Path, figs, cfig) -> None:
         pg.heading("Station and operating inputs")
         rows = []
         for spec in site.antennas:
-            params = ", ".join(f"{k} {v}" for k, v in spec.params)
+            params = ", ".join(f"{k} {v:.4g}" if isinstance(v, float) else f"{k} {v}" for k, v in spec.params)
+            if spec.trim:
+                params += (f" (trimmed in the model for resonance at {spec.trim.resonant_mhz:g} MHz; rule of thumb "
+                           f"{spec.trim.rule_length_m:.3f} m)")
             rows.append([spec.name, spec.kind, f"({spec.position_m[0]:g}, {spec.position_m[1]:g})", params])
         pg.table(["antenna", "kind", "position m", "parameters"], rows, [18, 8, 12, 62])
         rows = []

@@ -11,7 +11,7 @@ import hashlib
 import math
 import tomllib
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -76,10 +76,23 @@ class AntennaSpec:
     name: str
     kind: str
     position_m: tuple[float, float]
-    params: tuple[tuple[str, Any], ...]  # builder keyword arguments, as given
+    params: tuple[tuple[str, Any], ...]  # builder keyword arguments (resonant_mhz trimmed to a length_m)
+    trim: Trim | None = None  # how resonant_mhz became the length in params
 
     def param(self, key: str, default=None):
         return dict(self.params).get(key, default)
+
+
+@dataclass(frozen=True)
+class Trim:
+    """A ``resonant_mhz`` antenna trimmed in the model: the length whose feed reactance is zero at
+    that frequency, at the antenna's real height over the site's ground (the antenna alone)."""
+
+    resonant_mhz: float
+    rule_length_m: float  # the builder's rule-of-thumb length
+    length_m: float  # trimmed
+    feed_impedance_ohm: complex  # at the trimmed length
+    solves: int
 
 
 @dataclass(frozen=True)
@@ -493,26 +506,15 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
         raise SiteError(c.problems)
     site = Site(name, sha256, title, standard, north, site_notes, gnd, grid, tuple(area_list), tuple(line_list),
                 tuple(ant_list), tuple(tx_list), tuple(notes))
-    # build every antenna once, so geometry errors surface here, before any solve
-    problems = []
-    built = []
-    for a in site.antennas:
-        try:
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore", antennas.ModelRuleWarning)
-                f = highest_frequency_mhz(site, a.name)
-                s = build(site, a, f)
-                antennas.validate(s, f, gnd.over_ground)
-                built.append(s)
-        except (GeometryError, TypeError, ValueError) as err:
-            problems.append(f"{name}: antenna {a.name!r}: {err}")
-    if not problems:
-        try:
-            antennas.check_apart(built)
-        except GeometryError as err:
-            problems.append(f"{name}: antenna: {err}")
-    if problems:
-        raise SiteError(problems)
+    # build every antenna once, so geometry errors surface here, before any solve; then make
+    # resonant_mhz true in the model (a few solves per antenna) and check the trimmed geometry again
+    built = _build_all(site)
+    try:
+        site = replace(site, antennas=tuple(trim_resonant(site, a) for a in site.antennas))
+    except engine.EngineError as err:
+        raise SiteError([f"{name}: antenna: trimming to resonance failed: {err}"]) from None
+    if any(a.trim for a in site.antennas):
+        built = _build_all(site)
     notes += _body_line_notes(site) + _far_antenna_notes(site, built) + _unusual_notes(site)
     for n in notes:
         warnings.warn(n, SiteWarning, stacklevel=2)
@@ -613,6 +615,58 @@ def _unusual_notes(site: Site) -> list[str]:
 FAR_ANTENNA_M = 100.0
 
 
+TRIM_KINDS = {"dipole": "length_m", "vertical": "length_m"}
+TRIM_REACTANCE_OHM = 1.0  # stop when |X| is below this
+TRIM_SOLVES = 12
+TRIM_SEGMENTS_MAX = 2_000
+
+
+def trim_resonant(site: Site, spec: AntennaSpec) -> AntennaSpec:
+    """``resonant_mhz`` made true in the model: the length with zero feed reactance at that frequency.
+
+    The antenna alone (other antennas absent) at its own height and over the site's ground, segmented
+    as for its own transmissions; a secant search on the length from the builder's rule of thumb, a
+    few solves. An explicit ``length_m`` is kept as given. The returned spec carries ``length_m`` and
+    the :class:`Trim` record.
+    """
+    f = spec.param("resonant_mhz")
+    if spec.kind not in TRIM_KINDS or f is None or spec.trim is not None:
+        return spec
+    others = tuple((k, v) for k, v in spec.params if k != "resonant_mhz")
+
+    def reactance(length_m: float) -> complex:
+        trial = AntennaSpec(spec.name, spec.kind, spec.position_m, tuple(sorted((*others, ("length_m", length_m)))))
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            s = build(site, trial, max(f, highest_frequency_mhz(site, spec.name)))
+        return engine.solve(engine.Model((s,), 0, f, site.ground)).feed_impedance_ohm
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        rule = build(site, spec, max(f, highest_frequency_mhz(site, spec.name)))
+    if rule.segment_count > TRIM_SEGMENTS_MAX:
+        return spec  # beyond any budget: the run is refused later with the reason
+    l0 = _radiator_length_m(rule, spec.kind)
+    z0 = reactance(l0)
+    l1 = l0 * (0.97 if z0.imag > 0 else 1.03)
+    z1 = reactance(l1)
+    n = 2
+    while abs(z1.imag) > TRIM_REACTANCE_OHM and n < TRIM_SOLVES and z1.imag != z0.imag:
+        l2 = l1 - z1.imag * (l1 - l0) / (z1.imag - z0.imag)
+        l2 = min(max(l2, 0.5 * l1), 1.5 * l1)  # keep a wild step in bounds
+        l0, z0, l1, z1 = l1, z1, l2, reactance(l2)
+        n += 1
+    trim = Trim(float(f), _radiator_length_m(rule, spec.kind), float(l1), z1, n)
+    return AntennaSpec(spec.name, spec.kind, spec.position_m, tuple(sorted((*others, ("length_m", float(l1))))), trim)
+
+
+def _radiator_length_m(s: Structure, kind: str) -> float:
+    """The length a builder's ``length_m`` means: a dipole's wire end to end, a vertical's radiator."""
+    if kind == "vertical":
+        return s.wires[0].length_m
+    return sum(w.length_m for w in s.wires)
+
+
 def _far_antenna_notes(site: Site, built: list[Structure]) -> list[str]:
     """An antenna far from every area grows the lattice to reach it: say so (the budget may refuse the run)."""
     if not site.areas:
@@ -644,6 +698,30 @@ def _body_line_notes(site: Site) -> list[str]:
                 f"at {rh + 0.15:.2f} m or higher"
             )
     return out
+
+
+def _build_all(site: Site) -> list[Structure]:
+    """Every antenna built and checked against the NEC rules and each other; ``SiteError`` listing problems."""
+    problems = []
+    built = []
+    for a in site.antennas:
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", antennas.ModelRuleWarning)
+                f = highest_frequency_mhz(site, a.name)
+                s = build(site, a, f)
+                antennas.validate(s, f, site.ground.over_ground)
+                built.append(s)
+        except (GeometryError, TypeError, ValueError) as err:
+            problems.append(f"{site.path}: antenna {a.name!r}: {str(err).removeprefix(f'antenna {a.name!r}: ')}")
+    if not problems:
+        try:
+            antennas.check_apart(built)
+        except GeometryError as err:
+            problems.append(f"{site.path}: antenna: {err}")
+    if problems:
+        raise SiteError(problems)
+    return built
 
 
 def _tables(c: _Checker, doc: dict, key: str) -> list:
