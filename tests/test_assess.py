@@ -122,7 +122,7 @@ def test_model_and_far_field_distance_agree_far_out_in_free_space():
                      "wire": [{"from_m": [0, 0, 1 - lam / 4], "to_m": [0, 0, 1 + lam / 4]}], "feed": {"wire": 1}}],
         "transmission": [{"name": "t", "antenna": "d", "frequency_mhz": 144.0, "power_w": 10000, "mode": "carrier"}],
     })
-    t = assess.assess(s).transmissions[0]
+    t = assess.assess(s, grow=False).transmissions[0]  # the distance along the strip; no need to map beyond it
     lim = limits.limits("icnirp-2020", "public", 144.0)
     free = farfield.distance_to_limit_m(t.average_power_w, 10 ** (t.gain_dbi / 10), lim, ground_reflection=False)
     assert t.model_distance_m > 10 * lam
@@ -205,3 +205,37 @@ def test_stacked_floors_are_each_assessed_at_their_own_height():
         e, h = engine.rms_magnitude(nf.e_v_per_m)[0], engine.rms_magnitude(nf.h_a_per_m)[0]
         expected = max((e / lim.e_v_per_m[0]) ** 2, (h / lim.h_a_per_m[0]) ** 2)
         assert res[name].max_ratio == pytest.approx(expected, rel=1e-6)
+
+
+def _edge_site(margin, power_w=400.0):
+    return _site({
+        "format": 1,
+        "site": {"title": "edge", "standard": "icnirp-2020"},
+        "ground": {"kind": "average"},
+        "grid": {"spacing_m": 1.0, "margin_m": margin, "body_points": 3},
+        "area": [{"name": "yard", "polygon": [[-4, -4], [4, -4], [4, 4], [-4, 4]]}],
+        "antenna": [{"name": "v", "kind": "vertical", "position_m": [0, 0], "length_m": 2.5, "radials": 4}],
+        "transmission": [{"name": "t", "antenna": "v", "frequency_mhz": 28.4, "power_w": power_w,
+                          "mode": "carrier"}],
+    })
+
+
+def test_the_lattice_grows_until_its_edge_reads_below_a_tenth():
+    a = assess.assess(_edge_site(0.0))
+    assert a.margin_given_m == 0.0 and a.site.grid.margin_m > 0.0
+    assert a.edge_ratio < assess.EDGE_RATIO
+    # recomputed from the maps themselves: every transmission and the combined case
+    for r in [t.ratio for t in a.transmissions] + [a.combined.ratio]:
+        assert assess.edge_ratio(r) < assess.EDGE_RATIO
+    # without growth the same site's edge is at or above 0.1: the growth was needed
+    b = assess.assess(_edge_site(0.0), grow=False)
+    assert b.edge_ratio >= assess.EDGE_RATIO and b.margin_given_m is None
+
+
+def test_a_capped_lattice_says_where_it_ends(monkeypatch):
+    monkeypatch.setattr(assess, "MARGIN_MAX_M", 1.0)
+    a = assess.assess(_edge_site(0.0, power_w=20000.0))
+    assert a.edge_ratio >= assess.EDGE_RATIO
+    from nfmap import report
+
+    assert "CAUTION: on the lattice's outer edge the ratio is still" in report._edge_sentence(a)

@@ -13,7 +13,7 @@ from __future__ import annotations
 import math
 import warnings
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import contourpy
 import numpy as np
@@ -192,6 +192,8 @@ class Assessment:
     points_evaluated: int
     h_method: str
     warnings: tuple[str, ...]
+    edge_ratio: float = 0.0  # the largest ratio on the lattice's outer edge (any transmission or the combined case)
+    margin_given_m: float | None = None  # the site file's margin, when the lattice was grown beyond it
 
     @property
     def over(self) -> bool:
@@ -338,19 +340,101 @@ class LevelMaps:
         return self.judged.governing
 
 
-def assess(site: Site, jobs: int = 1, progress: Callable[[int], None] | None = None) -> Assessment:
-    """The whole assessment of a site (see the module docstring)."""
+EDGE_RATIO = 0.1  # the lattice grows until the ratio on its edge is below this (the lowest level drawn)
+MARGIN_MAX_M = 100.0  # ... but not beyond this margin
+
+
+def assess(site: Site, jobs: int = 1, progress: Callable[[int], None] | None = None,
+           grow: bool = True, max_field_points: int | None = None) -> Assessment:
+    """The whole assessment of a site (see the module docstring).
+
+    When the ratio on the lattice's outer edge is ``EDGE_RATIO`` or more, the exposure goes on beyond
+    the map: the margin is grown (a ring of points evaluated at each trial margin, cheap) until the
+    edge is below it, up to ``MARGIN_MAX_M`` and ``max_field_points``, and the site assessed again
+    once. The record says how far it was grown, or where the lattice ends and its edge value.
+    """
+    with engine.Workers(jobs) as workers:
+        a = _assess_once(site, workers, progress)
+        if not grow or a.edge_ratio < EDGE_RATIO:
+            return a
+        margin = covering_margin_m(site, workers, max_field_points)
+        if margin <= site.grid.margin_m:
+            return a
+        grown = replace(site, grid=replace(site.grid, margin_m=margin))
+        b = _assess_once(grown, workers, progress)
+        return replace(b, margin_given_m=site.grid.margin_m)
+
+
+def _assess_once(site: Site, workers: engine.Workers, progress) -> Assessment:
     pl = plan(site)
     notes: list[str] = list(site.warnings)
     lats = _lattices(site, pl)
     results = []
     points = 0
-    with engine.Workers(jobs) as workers:
-        for t in site.transmissions:
-            results.append(_one(site, pl, lats, t, workers, progress, notes))
-            points += sum(lat.size for lat in lats) * len(headings_for(site, t.antenna))
+    for t in site.transmissions:
+        results.append(_one(site, pl, lats, t, workers, progress, notes))
+        points += sum(lat.size for lat in lats) * len(headings_for(site, t.antenna))
     comb = combined(site, pl, results)
-    return Assessment(site, pl, tuple(results), comb, points, engine.default_h_method(site.ground), tuple(notes))
+    edge = max([edge_ratio(r.ratio) for r in results] + [edge_ratio(comb.ratio)])
+    return Assessment(site, pl, tuple(results), comb, points, engine.default_h_method(site.ground), tuple(notes),
+                      edge)
+
+
+def edge_ratio(ratio: np.ndarray) -> float:
+    """The largest ratio on the outer rows and columns of a plan map (masked points left out)."""
+    ring = np.concatenate([ratio[0], ratio[-1], ratio[:, 0], ratio[:, -1]])
+    ring = ring[np.isfinite(ring)]
+    return float(ring.max()) if ring.size else 0.0
+
+
+def covering_margin_m(site: Site, workers: engine.Workers, max_field_points: int | None = None) -> float:
+    """The smallest margin (tried in growing steps) whose lattice edge reads below ``EDGE_RATIO``.
+
+    At each trial only the ground ring of the lattice is evaluated (every transmission, its worst
+    check against the public tier; the ratios of all transmissions added, an upper bound for any
+    group). Stops at ``MARGIN_MAX_M`` or where the lattice would exceed ``max_field_points``.
+    """
+    margin = site.grid.margin_m
+    points_per_plan = site.grid.body.points * sum(len(headings_for(site, t.antenna)) for t in site.transmissions)
+    while margin < MARGIN_MAX_M:
+        trial = replace(site, grid=replace(site.grid, margin_m=margin))
+        r = _ring_ratio(trial, workers)
+        if r < EDGE_RATIO:
+            return margin
+        step = max(2.0, (margin + 5.0) * (math.sqrt(r / EDGE_RATIO) - 1.0))
+        nxt = min(MARGIN_MAX_M, margin + step)
+        if max_field_points is not None:
+            pl = plan(replace(site, grid=replace(site.grid, margin_m=nxt)))
+            if len(pl.x_m) * len(pl.y_m) * points_per_plan * len(pl.levels) > max_field_points:
+                return margin
+        margin = nxt
+    return margin
+
+
+def _ring_ratio(site: Site, workers: engine.Workers) -> float:
+    """Sum over transmissions of the worst check on the ground ring of the site's lattice."""
+    pl = plan(site)
+    xx, yy = np.meshgrid(pl.x_m, pl.y_m)
+    ring = np.zeros(xx.shape, bool)
+    ring[0], ring[-1], ring[:, 0], ring[:, -1] = True, True, True, True
+    px, py = xx[ring], yy[ring]
+    heights = site.grid.body.heights_m()
+    pts = np.column_stack([np.repeat(px, len(heights)), np.repeat(py, len(heights)), np.tile(heights, len(px))])
+    total = np.zeros(len(px))
+    for t in site.transmissions:
+        worst = np.zeros(len(px))
+        for heading in headings_for(site, t.antenna):
+            nf = engine.near_fields(model_for(site, t.name, heading_deg=heading), pts, t.envelope_power_w, jobs=workers)
+            e = engine.rms_magnitude(nf.e_v_per_m).reshape(len(px), len(heights)).T
+            h = engine.rms_magnitude(nf.h_a_per_m).reshape(len(px), len(heights)).T
+            e_b, h_b = averaging.body_reduce(e, site.grid.spatial), averaging.body_reduce(h, site.grid.spatial)
+            e_p, h_p = averaging.spatial_peak(e), averaging.spatial_peak(h)
+            for c in checks.checks_for(site.standard, t.frequency_mhz):
+                ef, hf = (e_p, h_p) if c.spatial == "peak" else (e_b, h_b)
+                r, _ = ratios.exposure_ratio(ef, hf, checks.check_limits(c, "public", t.frequency_mhz))
+                worst = np.fmax(worst, np.nan_to_num(r) * t.power_factor(c, "public"))
+        total += worst
+    return float(total.max()) if total.size else 0.0
 
 
 ROTATOR_HEADINGS_DEG = tuple(range(0, 360, 45))

@@ -305,7 +305,7 @@ def run_cmd(site_file, out_dir, jobs, force, large, quiet):
 def _run_site(site, out: Path, jobs: int, force: bool, quiet: bool, large: bool = False) -> int:
     import signal
 
-    from . import assess, outfolder
+    from . import assess, budget, outfolder
 
     est = _budget(site, jobs, large, quiet)
     previous = signal.signal(signal.SIGTERM, _on_sigterm)
@@ -314,7 +314,8 @@ def _run_site(site, out: Path, jobs: int, force: bool, quiet: bool, large: bool 
             for n in res.notes:
                 click.echo(f"nfmap: {n}", err=True)
             with _progress(est.field_points, jobs, quiet) as bar:
-                a = _engine_errors(lambda: assess.assess(site, jobs=jobs, progress=bar.update))
+                cap = None if large else budget.FIELD_POINTS_MAX
+                a = _engine_errors(lambda: assess.assess(site, jobs=jobs, progress=bar.update, max_field_points=cap))
             res.commit(lambda folder: _write_all(a, folder),
                        {"site_file": Path(site.path).name, "site_sha256": site.sha256})
     except outfolder.OutputError as err:
@@ -355,6 +356,7 @@ class _Lines:
 
     def update(self, n: int) -> None:
         self.done += n
+        self.total = max(self.total, self.done)  # a lattice grown to cover the exposure adds points
         now = self.clock()
         if now - self.last >= self.every_s or self.done >= self.total:
             self.last = now
@@ -385,6 +387,8 @@ def _write_all(a, folder: Path) -> None:
 
 
 def _summary(a, out: Path) -> None:
+    from .assess import EDGE_RATIO
+
     click.echo(f"{a.site.title}: {a.site.standard}, {len(a.transmissions)} transmissions, {a.points_evaluated} points")
     for t in a.transmissions:
         ceiling = ("no limit within the lattice" if t.power_ceiling_w is None or math.isinf(t.power_ceiling_w)
@@ -411,6 +415,11 @@ def _summary(a, out: Path) -> None:
             powers = ", ".join(f"{m} {a.site.transmission(m).power_w * g.power_scale:.0f} W" for m in g.members)
             click.echo(f"  group {g.name!r} together: power scale {g.power_scale:.3g} ({powers} PEP; "
                        f"{g.worst_check} check in {g.worst_area})")
+    if a.margin_given_m is not None:
+        click.echo(f"lattice grown: margin {a.site.grid.margin_m:g} m (site file {a.margin_given_m:g} m) so that its "
+                   f"edge reads {a.edge_ratio:.2g} of the limit")
+    if a.edge_ratio >= EDGE_RATIO:
+        click.echo(f"note: the ratio on the lattice's edge is still {a.edge_ratio:.2g}: exposure continues beyond the map")
     click.echo(f"written to {out}/")
     click.echo("A model is not a measurement; local regulations and a qualified assessment prevail.")
 

@@ -184,6 +184,7 @@ def write_report(a, path: Path, figs, cfig) -> None:
         pg.line(f"Lattice: {site.grid.spacing_m:g} m spacing, {len(a.plan.x_m)} x {len(a.plan.y_m)} plan points, "
                 f"x {a.plan.x_m[0]:g} to {a.plan.x_m[-1]:g} m, y {a.plan.y_m[0]:g} to {a.plan.y_m[-1]:g} m; "
                 f"{a.points_evaluated} field points in all.")
+        pg.line(_edge_sentence(a))
         pg.line(f"Body line: {b.points} heights from {b.from_m:g} to {b.to_m:g} m above the floor of each area; "
                 f"{site.grid.spatial} of E^2 and of H^2 along it (ICNIRP 2020 spatial averaging of squared values).")
         areas = [[ar.name, ar.exposure, f"{ar.floor_m:g}"] for ar in site.areas]
@@ -299,6 +300,19 @@ def _group_sentence(a, g) -> str:
     return (f"Group {g.name!r} ({members}) running together: all members' powers times {g.power_scale:.3g} put the "
             f"worst combined point ({g.worst_area}, {CHECK_NAMES.get(g.worst_check, g.worst_check)} check) at the "
             f"limit: {powers}. The single-transmission ceilings hold only when each transmission runs alone.")
+
+
+def _edge_sentence(a) -> str:
+    from .assess import EDGE_RATIO
+
+    grown = (f"The margin was grown from {a.margin_given_m:g} m (site file) to {a.site.grid.margin_m:g} m so that the "
+             "lattice covers the exposure. ") if a.margin_given_m is not None else ""
+    if a.edge_ratio < EDGE_RATIO:
+        return grown + (f"On the lattice's outer edge the ratio is at most {a.edge_ratio:.2g}, below {EDGE_RATIO:g}: "
+                        "the maps show where the exposure ends.")
+    return grown + (f"CAUTION: on the lattice's outer edge the ratio is still {a.edge_ratio:.2g} (at or above "
+                    f"{EDGE_RATIO:g}): the exposure continues beyond x {a.plan.x_m[0]:g} to {a.plan.x_m[-1]:g} m, "
+                    f"y {a.plan.y_m[0]:g} to {a.plan.y_m[-1]:g} m; places outside the map are not assessed.")
 
 
 def _crossing_lines(pg, crossings) -> None:
