@@ -45,7 +45,7 @@ def test_demo_writes_every_output(tmp_path):
     r = nfmap("demo", "-o", str(tmp_path / "d"), "--quiet")
     assert r.returncode in (0, 1), r.stderr
     out = tmp_path / "d" / "results"
-    for f in ("report.pdf", "results.json", "fields.npz", "exceedance.geojson", "map-combined.png",
+    for f in ("report.pdf", "results.json", "fields.npz", "exceedance-site.json", "map-combined.png",
               "map-40-m-phone.png", "map-20-m-cw.png", "map-10-m-digital.png"):
         assert (out / f).exists(), f
     doc = json.loads((out / "results.json").read_text())

@@ -1,5 +1,6 @@
 """The record: results.json, fields.npz, exceedance.geojson, the maps and report.pdf."""
 
+import dataclasses
 import json
 import subprocess
 import sys
@@ -50,13 +51,63 @@ def test_results_json_has_the_interface_schema(written):
     assert "power_scale" in doc["combined"] and "group_ceilings" in doc["combined"]
 
 
-def test_geojson_polygons_per_transmission_and_level(written):
+def test_site_metre_exceedance_without_an_origin(written):
     _, out = written
-    doc = json.loads((out / "exceedance.geojson").read_text())
-    assert doc["type"] == "FeatureCollection"
-    props = {(f["properties"]["name"], f["properties"]["level"]) for f in doc["features"]}
-    assert ("t", 1.0) in props and ("t", 0.5) in props and ("combined", 1.0) in props
+    assert not (out / "exceedance.geojson").exists()  # no origin: nothing that claims to be GeoJSON
+    doc = json.loads((out / "exceedance-site.json").read_text())
+    props = [f["properties"] for f in doc["features"]]
+    keys = {(p["transmission"], p["check"], p["level"], p["masked"]) for p in props}
+    assert ("t", "worst", 1.0, False) in keys and ("t", "whole-body", 0.5, False) in keys
+    assert ("combined", "worst", 1.0, False) in keys
+    assert all(isinstance(p["floor_m"], float) for p in props)
     assert all(f["geometry"]["type"] in ("Polygon", "MultiPolygon") for f in doc["features"])
+
+
+def _rings(geom):
+    polys = [geom["coordinates"]] if geom["type"] == "Polygon" else geom["coordinates"]
+    return [ring for poly in polys for ring in poly], polys
+
+
+def _signed_area(ring):
+    xy = np.asarray(ring)
+    return 0.5 * np.sum(xy[:-1, 0] * xy[1:, 1] - xy[1:, 0] * xy[:-1, 1])
+
+
+def test_geojson_with_an_origin_is_rfc_7946_and_round_trips(written):
+    # RFC 7946 (2016): FeatureCollection of Features; positions [longitude, latitude] in WGS84 (sec. 3.1.1, 4);
+    # linear rings closed with >= 4 positions (3.1.6); exterior rings counterclockwise, holes clockwise (3.1.6,
+    # "SHOULD"); no "crs" member (4). The round trip goes back through pyproj's inverse.
+    a, _ = written
+    origin = (47.3, 8.5)
+    b = dataclasses.replace(a, site=dataclasses.replace(a.site, origin=origin, north_deg=30.0))
+    name, doc = records.geojson_doc(b)
+    assert name == "exceedance.geojson" and doc["type"] == "FeatureCollection" and "crs" not in doc
+    site_doc = records.geojson_doc(a)[1]
+    to_site = records.wgs84_to_site(origin, 30.0)
+    assert len(doc["features"]) == len(site_doc["features"]) > 0
+    for ft, ref in zip(doc["features"], site_doc["features"], strict=True):
+        assert ft["type"] == "Feature" and ft["properties"] == ref["properties"]
+        rings, polys = _rings(ft["geometry"])
+        for ring in rings:
+            xy = np.asarray(ring)
+            assert len(ring) >= 4 and ring[0] == ring[-1]
+            assert np.all(np.abs(xy[:, 0] - origin[1]) < 0.01) and np.all(np.abs(xy[:, 1] - origin[0]) < 0.01)
+        for poly in polys:
+            assert _signed_area(poly[0]) > 0 and all(_signed_area(h) < 0 for h in poly[1:])
+        back = np.vstack([to_site(np.asarray(r)) for r in rings])
+        want = np.vstack([np.asarray(r) for r in _rings(ref["geometry"])[0]])
+        np.testing.assert_allclose(back, want, atol=1e-6)  # metres
+
+
+def test_the_origin_turns_with_north():
+    # a point 100 m along +y with +y at bearing 90 degrees lies due east of the origin (common practice:
+    # bearings clockwise from true north)
+    f = records.site_to_wgs84((0.0, 0.0), 90.0)
+    lon, lat = f(np.array([[0.0, 100.0]]))[0]
+    assert lat == pytest.approx(0.0, abs=1e-9) and lon > 0
+    # 1 degree of longitude on the equator of the WGS84 ellipsoid: 111,319.49 m (a = 6,378,137 m)
+    lon, _ = f(np.array([[0.0, 111_319.49]]))[0]
+    assert lon == pytest.approx(1.0, abs=1e-4)
 
 
 def test_fields_npz_holds_lattice_fields_and_ratios(written):

@@ -181,6 +181,7 @@ class CombinedResult:
     areas: tuple[AreaResult, ...]
     crossings: tuple[Crossing, ...]
     group_results: tuple[GroupResult, ...] = ()
+    levels: tuple[Judged, ...] = ()  # per level of the plan: each check summed by group, the worst group
 
 
 @dataclass(frozen=True)
@@ -738,7 +739,7 @@ def combined(site: Site, pl: Plan, results: list[TransmissionResult]) -> Combine
         name = by_name[g[0]].name if len(g) == 1 else (site.transmission(g[0]).group or " + ".join(g))
         group_results.append(GroupResult(name, g, scale, worst.name if worst else None, worst.check if worst else None))
     return CombinedResult(tuple(groups), display_ratio(pl, [j.ratio for j in per_level]), areas,
-                          line_crossings(site, pl, per_level[0].ratio), tuple(group_results))
+                          line_crossings(site, pl, per_level[0].ratio), tuple(group_results), tuple(per_level))
 
 
 def _checks_of(site: Site, members: list[TransmissionResult]) -> list[checks.Check]:

@@ -183,29 +183,97 @@ def check_rows(site, t) -> list[dict]:
     return out
 
 
-def geojson_doc(a: Assessment) -> dict:
-    """Polygons (site metres) where the ratio is at or above 1 and 0.5, per transmission and combined."""
+LEVELS = (1.0, 0.5)  # exceedance contours written: at the limit, and half the limit
+
+
+def exceedance_features(a: Assessment) -> list[dict]:
+    """Exceedance regions in site metres, one feature per transmission (and the combined case), floor,
+    check and level, and the masked zone per floor; properties as numbers and flags."""
     feats = []
-    maps = [(t.name, t.frequency_mhz, t.ratio) for t in a.transmissions] + [("combined", None, a.combined.ratio)]
-    for name, f, ratio in maps:
-        for level in (1.0, 0.5, "masked"):
-            region = masked_polygons(a.plan, ratio) if level == "masked" else exceedance_polygons(a.plan, ratio, level)
-            if region.is_empty:
-                continue
-            feats.append(
-                {
-                    "type": "Feature",
-                    "properties": {"name": name, "level": level, "frequency_mhz": f},
-                    "geometry": json.loads(shapely.to_geojson(region)),
-                }
-            )
-    return {
-        "type": "FeatureCollection",
-        "name": "nfmap exceedance",
-        "crs_note": "site metres: x east, y north (not geographic coordinates); level 'masked' is the zone too "
-        "close to a wire for the model, never counted as compliant",
-        "features": feats,
-    }
+    maps = [(t.name, "transmission", t.frequency_mhz, [lv.judged for lv in t.levels]) for t in a.transmissions]
+    maps.append(("combined", "combined", None, list(a.combined.levels)))
+    for name, kind, f, judged in maps:
+        for lv, j in zip(a.plan.levels, judged, strict=True):
+            place = lv.place
+            layers = [("worst", j.ratio)] + [(c, j.by_check[c]) for c in j.checks]
+            for check, ratio in layers:
+                shown = np.where(place, ratio, 0.0)
+                for level in LEVELS:
+                    region = exceedance_polygons(a.plan, shown, level)
+                    if not region.is_empty:
+                        feats.append(_feature(region, {"transmission": name, "kind": kind, "frequency_mhz": f,
+                                                       "floor_m": lv.floor_m, "check": check, "level": level,
+                                                       "masked": False}))
+            region = masked_polygons(a.plan, np.where(place, j.ratio, 0.0))
+            if not region.is_empty:
+                feats.append(_feature(region, {"transmission": name, "kind": kind, "frequency_mhz": f,
+                                               "floor_m": lv.floor_m, "check": None, "level": None, "masked": True}))
+    return feats
+
+
+def _feature(region, props: dict) -> dict:
+    return {"type": "Feature", "properties": props, "geometry": shapely.orient_polygons(region)}
+
+
+def geojson_doc(a: Assessment) -> tuple[str, dict]:
+    """The exceedance file: with a site origin, RFC 7946 GeoJSON in WGS84 longitude/latitude through a
+    local transverse Mercator projection centred on the origin (``exceedance.geojson``); without one,
+    the same features in site metres (``exceedance-site.json``, not GeoJSON)."""
+    feats = exceedance_features(a)
+    if a.site.origin is None:
+        for ft in feats:
+            ft["geometry"] = json.loads(shapely.to_geojson(ft["geometry"]))
+        return "exceedance-site.json", {
+            "type": "FeatureCollection", "name": "nfmap exceedance (site metres)",
+            "coordinates": "site metres: x east, y north of the site file (no geographic origin given: add "
+                           "site.origin = [latitude, longitude] for GeoJSON)",
+            "north_deg": a.site.north_deg, "features": feats}
+    to_geo = site_to_wgs84(a.site.origin, a.site.north_deg)
+    for ft in feats:
+        ft["geometry"] = json.loads(shapely.to_geojson(shapely.transform(ft["geometry"], to_geo)))
+    return "exceedance.geojson", {"type": "FeatureCollection", "features": feats}
+
+
+def site_to_wgs84(origin: tuple[float, float], north_deg: float):
+    """A function (N, 2) site metres -> (N, 2) longitude, latitude [deg] (for ``shapely.transform``).
+
+    Site x, y are turned by ``north_deg`` (the bearing of +y) to east, north, then taken from a
+    transverse Mercator projection centred on ``origin`` (scale 1 there) to WGS84 with pyproj.
+    """
+    import pyproj
+
+    lat0, lon0 = origin
+    tm = pyproj.CRS.from_proj4(f"+proj=tmerc +lat_0={lat0!r} +lon_0={lon0!r} +k=1 +x_0=0 +y_0=0 +ellps=WGS84 "
+                               "+units=m +no_defs")
+    fwd = pyproj.Transformer.from_crs(tm, "EPSG:4326", always_xy=True)
+    th = math.radians(north_deg)
+
+    def f(xy: np.ndarray) -> np.ndarray:
+        east = xy[:, 0] * math.cos(th) + xy[:, 1] * math.sin(th)
+        north = -xy[:, 0] * math.sin(th) + xy[:, 1] * math.cos(th)
+        lon, lat = fwd.transform(east, north)
+        return np.column_stack([lon, lat])
+
+    return f
+
+
+def wgs84_to_site(origin: tuple[float, float], north_deg: float):
+    """The inverse of :func:`site_to_wgs84` (for checks and for users bringing GIS points in)."""
+    import pyproj
+
+    lat0, lon0 = origin
+    tm = pyproj.CRS.from_proj4(f"+proj=tmerc +lat_0={lat0!r} +lon_0={lon0!r} +k=1 +x_0=0 +y_0=0 +ellps=WGS84 "
+                               "+units=m +no_defs")
+    inv = pyproj.Transformer.from_crs("EPSG:4326", tm, always_xy=True)
+    th = math.radians(north_deg)
+
+    def f(lonlat: np.ndarray) -> np.ndarray:
+        east, north = inv.transform(lonlat[:, 0], lonlat[:, 1])
+        x = east * math.cos(th) - north * math.sin(th)
+        y = east * math.sin(th) + north * math.cos(th)
+        return np.column_stack([x, y])
+
+    return f
 
 
 def fields_arrays(a: Assessment) -> dict[str, np.ndarray]:
@@ -241,5 +309,6 @@ def write_folder(out_dir: Path, force: bool, write) -> Path:
 
 def write_data(a: Assessment, folder: Path) -> None:
     (folder / "results.json").write_text(json.dumps(results_doc(a), indent=2, allow_nan=False) + "\n")
-    (folder / "exceedance.geojson").write_text(json.dumps(geojson_doc(a), indent=1, allow_nan=False) + "\n")
+    name, doc = geojson_doc(a)
+    (folder / name).write_text(json.dumps(doc, indent=1, allow_nan=False) + "\n")
     np.savez_compressed(folder / "fields.npz", **fields_arrays(a))

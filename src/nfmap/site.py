@@ -143,6 +143,7 @@ class Site:
     antennas: tuple[AntennaSpec, ...]
     transmissions: tuple[Transmission, ...]
     warnings: tuple[str, ...] = field(default=())
+    origin: tuple[float, float] | None = None  # WGS84 latitude, longitude of site (0, 0) [deg]
 
     def antenna(self, name: str) -> AntennaSpec:
         return next(a for a in self.antennas if a.name == name)
@@ -158,7 +159,7 @@ class Site:
 
 NUM = (int, float)
 TOP_KEYS = {"format", "site", "ground", "grid", "area", "line", "antenna", "transmission"}
-SITE_KEYS = {"title", "standard", "north_deg", "notes"}
+SITE_KEYS = {"title", "standard", "north_deg", "notes", "origin"}
 GROUND_KEYS = {"kind", "permittivity", "conductivity_s_per_m"}
 GRID_KEYS = {"spacing_m", "margin_m", "body_from_m", "body_to_m", "body_points", "spatial"}
 AREA_KEYS = {"name", "polygon", "exposure", "floor_m"}
@@ -333,12 +334,21 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
         c.bad("format", doc.get("format"), "1")
     s = doc.get("site", {})
     title = standard = None
+    origin = None
     north = 0.0
     site_notes = ""
     if c.keys(s, SITE_KEYS, "site"):
         title = c.text(s, "title", "site", required=True)
         standard = c.text(s, "standard", "site", choices=limits.STANDARDS, required=True)
         north = c.num(s, "north_deg", "site", 0.0)
+        o = s.get("origin")
+        if o is not None:
+            if (isinstance(o, list) and len(o) == 2 and all(isinstance(v, NUM) and not isinstance(v, bool)
+                                                            and math.isfinite(v) for v in o)
+                    and -90 < o[0] < 90 and -180 <= o[1] <= 180):
+                origin = (float(o[0]), float(o[1]))
+            else:
+                c.bad("site.origin", o, "[latitude, longitude] in WGS84 degrees (latitude -90..90, longitude -180..180)")
         site_notes = s.get("notes", "") if isinstance(s.get("notes", ""), str) else c.bad("site.notes", s["notes"], "text") or ""
 
     g = doc.get("ground", {"kind": "average"})
@@ -505,7 +515,7 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
     if c.problems:
         raise SiteError(c.problems)
     site = Site(name, sha256, title, standard, north, site_notes, gnd, grid, tuple(area_list), tuple(line_list),
-                tuple(ant_list), tuple(tx_list), tuple(notes))
+                tuple(ant_list), tuple(tx_list), tuple(notes), origin)
     # build every antenna once, so geometry errors surface here, before any solve; then make
     # resonant_mhz true in the model (a few solves per antenna) and check the trimmed geometry again
     built = _build_all(site)
