@@ -498,10 +498,15 @@ def judge_level(site: Site, lv: Level, t, e, h, e_pk, h_pk) -> tuple[Judged, np.
 
 
 def display_ratio(pl: Plan, ratios_by_level: list[np.ndarray]) -> np.ndarray:
-    """The ratio drawn on the plan: the worst level at each point (masked anywhere stays masked)."""
+    """The ratio drawn on the plan: the worst level at each point.
+
+    A point masked on some level stays masked (never compliant), unless another level there is at or
+    above the limit: a definite exceedance is shown rather than hidden under the hatching.
+    """
     out = np.array(ratios_by_level[0], float)
     for lv, r in zip(pl.levels[1:], ratios_by_level[1:], strict=True):
-        out = np.where(lv.place, _worst(out, r), out)
+        over = np.fmax(out, r)  # NaN only where both are masked
+        out = np.where(lv.place, np.where(over >= 1.0, over, _worst(out, r)), out)
     return out
 
 

@@ -1,9 +1,11 @@
 """Maps over the site plan (matplotlib; functions take ``ax=`` and return what they drew).
 
-Nothing here touches matplotlib's global settings. Exposure ratio is drawn as filled contours
-on the perceptually uniform, colour-blind-safe "cividis" scale at 0.1 ... 10 x the limit (log),
-the limit as a bold solid line with white casing, the 0.5 margin as a dashed line, so the two
-read apart in greyscale print.
+Nothing here touches matplotlib's global settings. The exposure ratio is drawn as filled bands
+at 0.1, 0.2, 0.5, 1, 2, 5 and 10 x the limit: below the limit pale blue-greys, at and above it
+oranges to dark red, the lightness falling monotonically from band to band (CIE L* from 100 to 17)
+so the map reads in greyscale print and the bands over the limit stand out in colour. The limit is
+a bold black line with a white casing, half the limit a dashed grey line. Labels are placed so that
+none overlaps another or leaves the figure (:func:`declutter`).
 """
 
 from __future__ import annotations
@@ -15,7 +17,7 @@ import numpy as np
 import shapely
 from matplotlib.colors import BoundaryNorm
 from matplotlib.figure import Figure
-from matplotlib.patches import FancyArrow, Polygon, Rectangle
+from matplotlib.patches import Circle, FancyArrow, Polygon, Rectangle
 
 from . import __version__
 from .assess import MAP_LEVELS, Plan
@@ -26,10 +28,17 @@ TIER_STYLE = {
     "none": {"edgecolor": "#8a8a8a", "linestyle": ":", "linewidth": 1.2, "hatch": "x"},
 }
 WIRE_COLOUR = "#c2185b"
+# band colours, one per interval of BAND_EDGES; CIE L*: 100, 92.6, 83.8, 73.5 | 59.6, 46.7, 32.6, 16.6
+BAND_COLOURS = ("#ffffff", "#e3ebf2", "#c3d3e3", "#a0b7d0", "#dc7328", "#bd4a1c", "#8f2716", "#52110d")
+BAND_EDGES = (1e-4, *MAP_LEVELS, 1e4)
+RATIO_LABEL = ("exposure ratio: (E/E_L)^2 or (H/H_L)^2, the larger\n"
+               "1 = at the limit; 0.25 = half the field-strength limit")
+MOVABLE = "nfmap-movable"  # gid of the labels declutter() may move
 
 
-def draw_plan(site, ax, antennas_wires=None, label_areas=True):
-    """Areas by tier, lines labelled, antennas as their wires projected on the plan."""
+def draw_plan(site, ax, structures=None, label_areas=True):
+    """Areas by tier, lines labelled, antennas as their wires projected on the plan, each labelled at its
+    feed or mast with its height; a beam's forward direction as an arrow (a circle for a rotator)."""
     drawn = []
     labelled = set()
     for a in site.areas:
@@ -41,37 +50,73 @@ def draw_plan(site, ax, antennas_wires=None, label_areas=True):
         if label_areas and a.polygon not in labelled:
             labelled.add(a.polygon)
             same = [b for b in site.areas if b.polygon == a.polygon]  # stacked floors share one label
-            # label inside the polygon, at the middle of its widest row near the top
             shape = a.shape
             x0, y0, x1, y1 = shape.bounds
             cy = y1 - min(0.12 * (y1 - y0), 1.5)
             row = shape.intersection(shapely.LineString([(x0, cy), (x1, cy)]))
             cx = row.centroid.x if not row.is_empty else shape.representative_point().x
             text = " / ".join(f"{b.name}" + (f" (floor {b.floor_m:g} m)" if b.floor_m else "") for b in same)
-            # wrap to the polygon's width on a 7.5 in wide figure (about 0.055 in per character)
             chars = int(6.5 / site_span_m(site) * (x1 - x0) / 0.055)
-            text = "\n".join(textwrap.wrap(text, max(10, chars)))
-            ax.annotate(text, (cx, cy), xytext=(0, 0), textcoords="offset points", ha="center", va="center",
-                        fontsize=6.5, color="#1b3a4b", zorder=6,
-                        bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.7})
+            text = "\n".join(textwrap.wrap(text, max(14, chars)))
+            t = ax.annotate(text, (cx, cy), xytext=(0, 0), textcoords="offset points", ha="center", va="center",
+                            fontsize=6.5, color="#1b3a4b", zorder=6, gid=MOVABLE,
+                            bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.8})
+            drawn.append(t)
     for ln in site.lines:
         xy = np.array(ln.points)
         (h,) = ax.plot(xy[:, 0], xy[:, 1], color="#6d4c41", linewidth=2.2, solid_capstyle="butt", zorder=5)
         ax.plot(xy[:, 0], xy[:, 1], color="white", linewidth=0.6, linestyle=(0, (2, 2)), zorder=5)
-        mid = xy[len(xy) // 2 - 1 : len(xy) // 2 + 1].mean(axis=0) if len(xy) > 1 else xy[0]
-        ax.annotate(ln.name, mid, xytext=(3, 3), textcoords="offset points", fontsize=6.5, color="#6d4c41", zorder=6)
-        drawn.append(h)
-    for name, wires in (antennas_wires or {}).items():
-        for w in wires:
+        mid = shapely.LineString(xy).interpolate(0.5, normalized=True) if len(xy) > 1 else shapely.Point(xy[0])
+        t = ax.annotate(ln.name, (mid.x, mid.y), xytext=(3, 3), textcoords="offset points", fontsize=6.5,
+                        color="#6d4c41", zorder=6, gid=MOVABLE,
+                        bbox={"boxstyle": "round,pad=0.1", "fc": "white", "ec": "none", "alpha": 0.7})
+        drawn += [h, t]
+    for name, s in (structures or {}).items():
+        for w in s.wires:
             ax.plot([w.start_m[0], w.end_m[0]], [w.start_m[1], w.end_m[1]], color="white", linewidth=3.2, zorder=7)
             ax.plot([w.start_m[0], w.end_m[0]], [w.start_m[1], w.end_m[1]], color=WIRE_COLOUR, linewidth=1.6, zorder=8)
-        # label below the lowest (southernmost) end, clear of the wires
-        ends = [p for w in wires for p in (w.start_m, w.end_m)]
-        x, y = min(ends, key=lambda p: p[1])[:2]
-        ax.annotate(name, (x, y), xytext=(0, -7), textcoords="offset points", ha="center", va="top", fontsize=7,
-                    color=WIRE_COLOUR, weight="bold", zorder=9,
-                    bbox={"boxstyle": "round,pad=0.1", "fc": "white", "ec": "none", "alpha": 0.75})
+        fx, fy, fz = feed_point_m(s)
+        ax.plot([fx], [fy], marker="o", markersize=4, color=WIRE_COLOUR, markeredgecolor="white", zorder=9)
+        spec = site.antenna(name)
+        label = antenna_label(spec, s)
+        if spec.kind == "beam":
+            heading = spec.param("heading_deg", 0.0)
+            if heading == "any":
+                label += ", rotator"
+                ax.add_patch(Circle((fx, fy), 1.2, fill=False, edgecolor=WIRE_COLOUR, linestyle=(0, (2, 1.5)),
+                                    linewidth=1.0, zorder=9))
+            else:
+                _beam_arrow(ax, site, fx, fy, float(heading))
+        t = ax.annotate(label, (fx, fy), xytext=(0, -9), textcoords="offset points", ha="center", va="top",
+                        fontsize=7, color=WIRE_COLOUR, weight="bold", zorder=9, gid=MOVABLE,
+                        bbox={"boxstyle": "round,pad=0.1", "fc": "white", "ec": "none", "alpha": 0.8})
+        drawn.append(t)
     return drawn
+
+
+def antenna_label(spec, s) -> str:
+    """'ten beam, 12 m'; a vertical says how tall it is and what it stands on."""
+    if spec.kind == "vertical":
+        radiator = s.wires[0]
+        base = spec.param("base_height_m", 0.0)
+        return f"{spec.name}, {radiator.length_m:.3g} m tall" + (f" on {base:g} m" if base else "")
+    z = spec.param("height_m") if spec.kind == "beam" else feed_point_m(s)[2]
+    return f"{spec.name}, {z:.3g} m"
+
+
+def feed_point_m(s) -> tuple[float, float, float]:
+    """Where an antenna is fed (a beam: its driven element's centre, on the mast) [m]."""
+    w = s.wires[s.feed_wire]
+    return tuple(float(w.start_m[i] + s.feed_at * (w.end_m[i] - w.start_m[i])) for i in range(3))
+
+
+def _beam_arrow(ax, site, x: float, y: float, heading_deg: float) -> None:
+    """An arrow from the mast towards the beam's heading (a compass bearing; +y is ``north_deg``)."""
+    ang = math.radians(heading_deg - site.north_deg)
+    length = 0.07 * site_span_m(site)
+    ax.annotate("", (x + length * math.sin(ang), y + length * math.cos(ang)), (x, y),
+                arrowprops={"arrowstyle": "-|>", "color": WIRE_COLOUR, "lw": 1.4, "shrinkA": 0, "shrinkB": 0},
+                zorder=9)
 
 
 def site_span_m(site) -> float:
@@ -81,47 +126,47 @@ def site_span_m(site) -> float:
 
 
 def draw_furniture(ax, north_deg: float, extent):
-    """North arrow (bearing of +y is ``north_deg``) and a scale bar, in the lower left."""
+    """North arrow (bearing of +y is ``north_deg``) with its N, and a scale bar, in the lower corners."""
     x0, x1, y0, y1 = extent
-    span = x1 - x0
+    span, tall = x1 - x0, y1 - y0
     bar = 10 ** math.floor(math.log10(span / 4))
     bar *= 5 if span / 4 >= 5 * bar else (2 if span / 4 >= 2 * bar else 1)
-    bx, by = x0 + 0.04 * span, y0 + 0.04 * (y1 - y0)
-    ax.add_patch(Rectangle((bx, by), bar, 0.012 * (y1 - y0), facecolor="black", zorder=10))
-    ax.add_patch(Rectangle((bx + bar / 2, by), bar / 2, 0.012 * (y1 - y0), facecolor="white", edgecolor="black", zorder=10))
-    ax.text(bx + bar / 2, by + 0.02 * (y1 - y0), f"{bar:g} m", ha="center", fontsize=7, zorder=10)
-    # +y points to bearing north_deg, so north is turned by -north_deg from +y
+    bx, by = x0 + 0.04 * span, y0 + 0.04 * tall
+    ax.add_patch(Rectangle((bx, by), bar, 0.012 * tall, facecolor="black", zorder=10))
+    ax.add_patch(Rectangle((bx + bar / 2, by), bar / 2, 0.012 * tall, facecolor="white", edgecolor="black", zorder=10))
+    ax.text(bx + bar / 2, by + 0.02 * tall, f"{bar:g} m", ha="center", fontsize=7, zorder=10,
+            bbox={"boxstyle": "round,pad=0.1", "fc": "white", "ec": "none", "alpha": 0.8})
+    # +y points to bearing north_deg, so north is turned by -north_deg from +y; the arrow sits in a
+    # white disc so it reads over any band
     ang = math.radians(-north_deg)
-    ax_x, ax_y = x1 - 0.06 * span, y0 + 0.08 * (y1 - y0)
-    length = 0.07 * (y1 - y0)
-    ax.add_patch(FancyArrow(ax_x, ax_y, length * math.sin(ang), length * math.cos(ang), width=0.012 * span,
-                            head_width=0.035 * span, head_length=0.03 * (y1 - y0), color="black", zorder=10))
-    ax.text(ax_x + 1.35 * length * math.sin(ang), ax_y + 1.35 * length * math.cos(ang), "N", ha="center",
-            va="center", fontsize=9, weight="bold", zorder=10)
+    r = 0.035 * min(span, tall)
+    cx, cy = x1 - 1.6 * r, y0 + 1.6 * r
+    ax.add_patch(Circle((cx, cy), 1.25 * r, facecolor="white", edgecolor="#444444", linewidth=0.6, alpha=0.9,
+                        zorder=10))
+    dx, dy = math.sin(ang), math.cos(ang)
+    ax.add_patch(FancyArrow(cx - 0.8 * r * dx, cy - 0.8 * r * dy, 1.0 * r * dx, 1.0 * r * dy, width=0.12 * r,
+                            head_width=0.45 * r, head_length=0.5 * r, length_includes_head=False, color="black",
+                            zorder=11))
+    ax.text(cx - 0.1 * r * dx + 0.75 * r * dy, cy - 0.1 * r * dy - 0.75 * r * dx, "N", ha="center", va="center",
+            fontsize=8, weight="bold", zorder=11)
 
 
 def draw_ratio(pl: Plan, ratio: np.ndarray, ax):
-    """Filled contours of the exposure ratio, the limit and 0.5 lines, and the masked zone."""
-    z = np.clip(np.where(np.isnan(ratio), np.nan, ratio), 1e-4, 1e4)
-    levels = [1e-4, *MAP_LEVELS, 1e4]
-    from matplotlib import colormaps
+    """Filled bands of the exposure ratio, the limit and half-limit lines, and the masked zone."""
     from matplotlib.colors import ListedColormap
 
-    # below 0.1 of the limit: paper white, so the plan stays readable; then cividis upwards
-    steps = colormaps["cividis"].resampled(len(levels) - 2)(np.arange(len(levels) - 2))
-    cmap = ListedColormap(np.vstack([[1.0, 1.0, 1.0, 1.0], steps]))
-    norm = BoundaryNorm(levels, cmap.N)
-    filled = ax.contourf(pl.x_m, pl.y_m, z, levels=levels, cmap=cmap, norm=norm, zorder=1)
-    half = ax.contour(pl.x_m, pl.y_m, z, levels=[0.5], colors="#777777", linewidths=1.0, linestyles="--", zorder=2)
-    ax.clabel(half, fmt={0.5: "0.5"}, fontsize=6.5, colors="#444444")
+    z = np.clip(np.where(np.isnan(ratio), np.nan, ratio), 1e-4, 1e4)
+    cmap = ListedColormap(BAND_COLOURS)
+    norm = BoundaryNorm(BAND_EDGES, cmap.N)
+    filled = ax.contourf(pl.x_m, pl.y_m, z, levels=list(BAND_EDGES), cmap=cmap, norm=norm, zorder=1)
+    half = ax.contour(pl.x_m, pl.y_m, z, levels=[0.5], colors="#666666", linewidths=1.0, linestyles="--", zorder=2)
     ax.contour(pl.x_m, pl.y_m, z, levels=[1.0], colors="white", linewidths=3.6, zorder=2)
     lim = ax.contour(pl.x_m, pl.y_m, z, levels=[1.0], colors="black", linewidths=2.0, zorder=3)
-    ax.clabel(lim, fmt={1.0: "limit"}, fontsize=7, colors="black")
     masked = np.isnan(ratio).astype(float)
     hatch = None
     if masked.any():
         hatch = ax.contourf(pl.x_m, pl.y_m, masked, levels=[0.5, 1.5], colors="none", hatches=["////"], zorder=3)
-        hatch.set_edgecolor("#d9d9d9")
+        hatch.set_edgecolor("#9e9e9e")
     return filled, lim, half, hatch
 
 
@@ -131,18 +176,83 @@ def draw_marks(ax, crossings, worst):
         ax.plot([c.from_m[0], c.to_m[0]], [c.from_m[1], c.to_m[1]], color="#ff6f00", linewidth=4.5, zorder=11,
                 solid_capstyle="butt", linestyle=(0, (1.5, 1)) if c.masked else "-")
         mx, my = (c.from_m[0] + c.to_m[0]) / 2, (c.from_m[1] + c.to_m[1]) / 2
-        ax.annotate(str(k), (mx, my), ha="center", va="center", fontsize=7, weight="bold", color="black", zorder=12,
-                    bbox={"boxstyle": "circle,pad=0.2", "fc": "#ffcc80", "ec": "black", "lw": 0.8})
+        ax.annotate(str(k), (mx, my), xytext=(0, 0), textcoords="offset points", ha="center", va="center",
+                    fontsize=7, weight="bold", color="black", zorder=12, gid=MOVABLE,
+                    bbox={"boxstyle": "circle,pad=0.2", "fc": "#ffcc80", "ec": "black", "lw": 0.8},
+                    arrowprops={"arrowstyle": "-", "color": "#444444", "lw": 0.6, "shrinkA": 0, "shrinkB": 0})
     for _name, (x, y), value in worst:
         ax.plot([x], [y], marker="D", markersize=5, markerfacecolor="white", markeredgecolor="black", zorder=12)
-        ax.annotate(f"{value:.2g}", (x, y), xytext=(4, -8), textcoords="offset points", fontsize=6.5, zorder=12,
-                    bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "black", "lw": 0.5})
+        ax.annotate(f"{value:.2g}", (x, y), xytext=(5, -9), textcoords="offset points", fontsize=6.5, zorder=12,
+                    gid=MOVABLE, bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "black", "lw": 0.5},
+                    arrowprops={"arrowstyle": "-", "color": "#444444", "lw": 0.6, "shrinkA": 0, "shrinkB": 3})
 
 
-def map_figure(assessment, ratio, title: str, crossings, areas, caption: str, structures) -> Figure:
-    """One complete map figure (not attached to pyplot)."""
+def declutter(fig, ax) -> list:
+    """Move the movable labels (gid ``MOVABLE``) so that no text overlaps another or leaves the plan.
+
+    Greedy: fixed texts first (titles, ticks, legend, caption, contour labels), then each label in
+    drawing order tries offsets on growing rings around its anchor and takes the first free place
+    (a leader line shows the link when it moved); a label that finds none shrinks a little and tries
+    again, and as a last resort is dropped from the plan and returned, so the caller can list it.
+    Returns the labels dropped.
+    """
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.text import Annotation, Text
+
+    if not isinstance(fig.canvas, FigureCanvasAgg):
+        FigureCanvasAgg(fig)  # measuring text needs a renderer; the PNG and PDF writers use their own
+    fig.canvas.draw()
+    renderer = fig.canvas.get_renderer()
+    area = ax.get_window_extent(renderer)
+    movable = [t for t in ax.texts if t.get_gid() == MOVABLE and t.get_visible()]
+    fixed = [t for t in fig.findobj(Text) if t.get_visible() and t.get_text().strip() and t not in movable]
+    taken = [_text_box(t, renderer) for t in fixed]
+    rings = [(0, 0)] + [(r * math.cos(a), r * math.sin(a)) for r in (8, 14, 20, 28, 38, 50, 64)
+                        for a in np.linspace(-math.pi / 2, 1.5 * math.pi, 16, endpoint=False)]
+    dropped = []
+    for t in movable:
+        base = tuple(t.xyann) if isinstance(t, Annotation) else (0.0, 0.0)
+        placed = False
+        for size in (t.get_fontsize(), t.get_fontsize() * 0.85):
+            t.set_fontsize(size)
+            for dx, dy in [base] + [(base[0] + a, base[1] + b) for a, b in rings[1:]]:
+                t.xyann = (dx, dy)
+                box = _text_box(t, renderer)
+                if not _inside(box, area) or any(box.overlaps(o) for o in taken):
+                    continue
+                taken.append(box)
+                placed = True
+                break
+            if placed:
+                break
+        if not placed:
+            t.set_visible(False)
+            dropped.append(t.get_text())
+        elif t.arrow_patch is not None and math.hypot(*t.xyann) < 12:
+            t.arrow_patch.set_visible(False)  # no leader line for a label beside its point
+    return dropped
+
+
+def _text_box(t, renderer):
+    """A label's own box (its text and the padding of its background, not its leader line) [px]."""
+    from matplotlib.text import Annotation, Text
+
+    if isinstance(t, Annotation):
+        t.update_positions(renderer)
+    box = Text.get_window_extent(t, renderer)
+    pad = 0.35 * t.get_fontsize() * renderer.points_to_pixels(1.0) if t.get_bbox_patch() is not None else 0.0
+    return box.expanded(1.0, 1.0).padded(pad)
+
+
+def _inside(box, area) -> bool:
+    return box.x0 >= area.x0 and box.y0 >= area.y0 and box.x1 <= area.x1 and box.y1 <= area.y1
+
+
+def map_figure(assessment, ratio, title: str, crossings, areas, caption: str, structures,
+               paper_in: tuple[float, float] | None = None) -> Figure:
+    """One complete map figure (not attached to pyplot); ``paper_in`` sizes it to a page [in]."""
     site, pl = assessment.site, assessment.plan
-    fig, ax, foot = _plan_figure(pl)
+    fig, ax, foot = _plan_figure(pl, paper_in)
     filled, *_ = draw_ratio(pl, ratio, ax)
     draw_plan(site, ax, structures)
     # worst point of each public area; the unnamed rest of the plan only where it matters
@@ -150,25 +260,84 @@ def map_figure(assessment, ratio, title: str, crossings, areas, caption: str, st
              if a.exposure == "public" and a.where_m and a.max_ratio and (a.name != "elsewhere" or a.max_ratio >= 0.5)]
     draw_marks(ax, crossings, worst)
     frame(ax, site, pl)
+    draw_inset(ax, pl, ratio, site, structures)
     ax.set_title(f"{site.title}\n{title}", fontsize=10)
     cax = ax.inset_axes([1.03, 0.1, 0.035, 0.8])  # glued to the plan, whatever its aspect
     cb = fig.colorbar(filled, cax=cax, ticks=MAP_LEVELS)
     cb.ax.set_yticklabels([f"{v:g}" for v in MAP_LEVELS])
-    cb.set_label("exposure ratio (1 = at the limit)")
+    cb.set_label(RATIO_LABEL, fontsize=7.5)
     cb.ax.axhline(1.0, color="black", linewidth=2.5)
     add_legend(foot)
-    _caption(foot, caption)
+    dropped = declutter(fig, ax)
+    if dropped:
+        caption += "; labels left out for lack of room: " + ", ".join(d.replace("\n", " ") for d in dropped)
+    _caption(foot, caption, fig.get_figwidth())
     return fig
 
 
-FOOT_IN = 1.25  # legend and caption band under the plan [in]
+INSET_SMALL = 0.2  # an exceedance zone smaller than this share of the plan gets an enlarged inset
 
 
-def _plan_figure(pl):
-    """A figure shaped to the plan: the plan axes and, below, a band for the legend and caption."""
-    aspect = (pl.y_m[-1] - pl.y_m[0] + 6) / (pl.x_m[-1] - pl.x_m[0] + 10)
-    plan_in = min(max(7.5 * aspect, 3.5), 10.0)
-    fig = Figure(figsize=(7.5, plan_in + FOOT_IN), layout="constrained")
+def draw_inset(ax, pl: Plan, ratio: np.ndarray, site, structures):
+    """An enlarged view of a small zone at or above the limit, in the plan corner farthest from it.
+
+    Returns the inset axes, or None when there is no such zone or it is large enough to read.
+    """
+    from .assess import exceedance_polygons
+
+    zone = exceedance_polygons(pl, ratio, 1.0)
+    if zone.is_empty:
+        return None
+    zx0, zy0, zx1, zy1 = zone.bounds
+    x0, x1, y0, y1 = pl.x_m[0], pl.x_m[-1], pl.y_m[0], pl.y_m[-1]
+    if max(zx1 - zx0, zy1 - zy0) > INSET_SMALL * min(x1 - x0, y1 - y0):
+        return None
+    half = max(zx1 - zx0, zy1 - zy0, 4 * pl.spacing_m, 2.0) * 0.9
+    cx, cy = (zx0 + zx1) / 2, (zy0 + zy1) / 2
+    # the corner that covers least of the site's drawing (areas, lines, wires), away from the zone itself
+    size = 0.32
+    drawn = [shapely.Polygon(a.polygon).boundary for a in site.areas] + [shapely.LineString(ln.points)
+                                                                          for ln in site.lines]
+    drawn += [shapely.LineString([w.start_m[:2], w.end_m[:2]]) for st in (structures or {}).values() for w in st.wires
+              if w.start_m[:2] != w.end_m[:2]]
+    stuff = shapely.union_all(drawn) if drawn else shapely.GeometryCollection()
+
+    def cost(k):
+        fx, fy = k
+        box = shapely.box(x0 + fx * (x1 - x0), y0 + fy * (y1 - y0), x0 + (fx + size) * (x1 - x0),
+                          y0 + (fy + size) * (y1 - y0))
+        return (box.intersects(zone), stuff.intersection(box).length)
+
+    where = min([(0.02, 0.62), (0.64, 0.62), (0.02, 0.16), (0.64, 0.16)], key=cost)
+    ins = ax.inset_axes([where[0], where[1], size, size])
+    draw_ratio(pl, ratio, ins)
+    draw_plan(site, ins, structures, label_areas=False)
+    for t in list(ins.texts):
+        t.remove()  # labels stay on the main plan
+    ins.set_xlim(cx - half, cx + half)
+    ins.set_ylim(cy - half, cy + half)
+    ins.set_aspect("equal")
+    ins.tick_params(labelsize=5.5, length=2)
+    ins.set_title(f"enlarged: {2 * half:.1g} m across", fontsize=6.5, pad=2)
+    for sp in ins.spines.values():
+        sp.set_edgecolor("black")
+        sp.set_linewidth(1.0)
+    ax.indicate_inset_zoom(ins, edgecolor="black", linewidth=0.8)
+    return ins
+
+
+FOOT_IN = 1.35  # legend and caption band under the plan [in]
+
+
+def _plan_figure(pl, paper_in: tuple[float, float] | None = None):
+    """A figure shaped to the plan (or to a page): the plan axes and, below, a band for legend and caption."""
+    if paper_in is not None:
+        fig = Figure(figsize=paper_in, layout="constrained")
+        plan_in = paper_in[1] - FOOT_IN - 0.4
+    else:
+        aspect = (pl.y_m[-1] - pl.y_m[0] + 6) / (pl.x_m[-1] - pl.x_m[0] + 10)
+        plan_in = min(max(7.5 * aspect, 3.5), 10.0)
+        fig = Figure(figsize=(7.5, plan_in + FOOT_IN), layout="constrained")
     grid = fig.add_gridspec(2, 1, height_ratios=[plan_in, FOOT_IN])
     ax = fig.add_subplot(grid[0])
     foot = fig.add_subplot(grid[1])
@@ -176,10 +345,10 @@ def _plan_figure(pl):
     return fig, ax, foot
 
 
-def _caption(foot, text: str) -> None:
-    """The caption at the bottom of the band."""
-    foot.text(0.0, 0.0, "\n".join(textwrap.wrap(text, 165)), fontsize=6, color="#333333", ha="left", va="bottom",
-              transform=foot.transAxes)
+def _caption(foot, text: str, width_in: float = 7.5) -> None:
+    """The caption at the bottom of the band, wrapped to the figure's width."""
+    foot.text(0.0, 0.0, "\n".join(textwrap.wrap(text, int(width_in / 0.047))), fontsize=6, color="#333333",
+              ha="left", va="bottom", transform=foot.transAxes)
 
 
 def add_legend(foot, fields: bool = True):
@@ -197,8 +366,9 @@ def add_legend(foot, fields: bool = True):
     if fields:
         handles += [
             Line2D([], [], color="black", linewidth=2.0, label="limit (ratio 1)"),
-            Line2D([], [], color="#777777", linewidth=1.0, linestyle="--", label="0.5: usual safety margin"),
-            Patch(facecolor="white", edgecolor="#999999", hatch="////", label="too close to a wire (masked)"),
+            Line2D([], [], color="#666666", linewidth=1.0, linestyle="--", label="half the limit (ratio 0.5)"),
+            Patch(facecolor="white", edgecolor="#9e9e9e", hatch="////", label="too close to a wire (masked)"),
+            Patch(facecolor=BAND_COLOURS[4], edgecolor="none", label="over the limit (orange to red)"),
             Line2D([], [], marker="D", color="none", markerfacecolor="white", markeredgecolor="black", label="worst point, value"),
             Line2D([], [], color="#ff6f00", linewidth=4, label="line crossed by limit region (numbered)"),
             Line2D([], [], color="#ff6f00", linewidth=4, linestyle=(0, (1.5, 1)), label="line crossed by masked zone"),
@@ -233,10 +403,10 @@ def caption_text(assessment) -> str:
 
 
 def wires_of(site) -> dict:
-    """Every antenna's wires as drawn on the plan, by antenna name."""
+    """Every antenna's structure as drawn on the plan, by antenna name."""
     from .assess import _structure, highest_any
 
-    return {a.name: _structure(site, a.name, highest_any(site)).wires for a in site.antennas}
+    return {a.name: _structure(site, a.name, highest_any(site)) for a in site.antennas}
 
 
 def save_plan(site, path) -> None:
@@ -249,4 +419,5 @@ def save_plan(site, path) -> None:
     frame(ax, site, pl)
     ax.set_title(f"{site.title}\nplan and antennas (no fields computed)", fontsize=10)
     add_legend(foot, fields=False)
+    declutter(fig, ax)
     fig.savefig(path, dpi=170)
