@@ -4,6 +4,7 @@ import dataclasses
 import json
 import subprocess
 import sys
+import warnings
 from importlib import resources
 from pathlib import Path
 
@@ -11,7 +12,7 @@ import numpy as np
 import pytest
 from pypdf import PdfReader
 
-from nfmap import assess, records, report
+from nfmap import assess, maps, records, report
 
 from .record_text import disagreements
 from .test_assess import free_dipole_site
@@ -186,3 +187,68 @@ def test_every_example_runs_and_renders(example, tmp_path):
         assert g["power_scale"] > 0 and "Group 'contest'" in text
         assert doc["combined"]["power_scale"]["contest"] == g["power_scale"]
         assert "(local," in r.stdout or "(whole-body," in r.stdout
+
+
+def _text_boxes(fig):
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.text import Text
+
+    if not isinstance(fig.canvas, FigureCanvasAgg):
+        FigureCanvasAgg(fig)
+    fig.canvas.draw()
+    r = fig.canvas.get_renderer()
+    # tick labels exist for ticks outside the view too; only those of ticks drawn count
+    tick_texts, drawn = set(), set()
+    for ax in fig.get_axes():
+        for axis in (ax.xaxis, ax.yaxis):
+            for tick in axis.get_major_ticks() + axis.get_minor_ticks():
+                tick_texts |= {id(tick.label1), id(tick.label2)}
+            if ax.axison and axis.get_visible():
+                for tick in axis._update_ticks():
+                    drawn |= {id(tick.label1), id(tick.label2)}
+    out = []
+    for t in fig.findobj(Text):
+        if t.get_visible() and t.get_text().strip() and (id(t) not in tick_texts or id(t) in drawn):
+            out.append((t.get_text(), maps._text_box(t, r)))
+    return out, fig.bbox
+
+
+def assert_legible(fig):
+    """No two texts of a figure overlap and every text lies inside the figure."""
+    boxes, page = _text_boxes(fig)
+    for text, b in boxes:
+        assert b.x0 >= page.x0 - 0.5 and b.y0 >= page.y0 - 0.5 and b.x1 <= page.x1 + 0.5 and b.y1 <= page.y1 + 0.5, \
+            f"{text!r} leaves the figure"
+    for i, (ta, a) in enumerate(boxes):
+        for tb, b in boxes[i + 1:]:
+            assert not a.overlaps(b), f"{ta!r} overlaps {tb!r}"
+
+
+@pytest.mark.parametrize("example", [pytest.param(e, marks=pytest.mark.slow) if e == "demo.toml" else e
+                                     for e in EXAMPLES])
+def test_every_example_map_and_section_is_legible(example, tmp_path):
+    # every text box (labels, values, titles, ticks, legend, caption) apart from every other and inside the
+    # figure, on the maps, the sections and the page-sized versions in the PDF
+    from nfmap import site as site_
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        s = site_.load(Path(resources.files("nfmap").joinpath("examples", example)))
+        a = assess.assess(s, jobs=2)
+    caption = maps.caption_text(a)
+    wires = maps.wires_of(s)
+    for t in a.transmissions:
+        assert_legible(maps.map_figure(a, t.ratio, "t", t.crossings, t.areas, caption, wires))
+        assert_legible(maps.map_figure(a, t.ratio, "t", t.crossings, t.areas, caption, wires, report.PAPERS_IN["a4"]))
+        assert_legible(maps.section_figure(a, t))
+
+
+def test_report_pages_are_all_one_paper_size(tmp_path):
+    s = free_dipole_site(power_w=3000, mode="carrier", fraction=1.0, loss_db=0.0)
+    a = assess.assess(s)
+    for paper, (w_in, h_in) in report.PAPERS_IN.items():
+        out = tmp_path / paper
+        out.mkdir()
+        report.write_maps_and_report(a, out, paper)
+        sizes = {(round(float(p.mediabox.width)), round(float(p.mediabox.height))) for p in PdfReader(out / "report.pdf").pages}
+        assert sizes == {(round(w_in * 72), round(h_in * 72))}  # ISO 216 A4 595 x 842 pt; US letter 612 x 792 pt

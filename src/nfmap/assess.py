@@ -22,6 +22,7 @@ import shapely
 import antennas
 
 from . import engine
+from . import section as section_
 from .exposure import averaging, checks, farfield, ratios
 from .site import STRICTNESS, Site, build
 
@@ -165,6 +166,7 @@ class TransmissionResult:
     masked_points: int
     warnings: tuple[str, ...] = field(default=())
     checks: tuple[str, ...] = ()  # ids of the checks applied (exposure.checks)
+    section: section_.Section | None = None  # elevation section through the fed antenna
 
     @property
     def governing_check(self) -> str | None:
@@ -577,12 +579,21 @@ def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
         if n not in notes:
             notes.append(n)
     masked = sum(int((np.isnan(m.ratio) & lv.place).sum()) for m, lv in zip(levels, pl.levels, strict=True))
+    spec = site.antenna(t.antenna)
+    sec = section_.compute(
+        site, t, model, _feed_m(structure), (float(pl.x_m[0]), float(pl.x_m[-1]), float(pl.y_m[0]), float(pl.y_m[-1])),
+        pl.spacing_m, workers, None if spec.section_deg is None else spec.section_deg - site.north_deg)
     return TransmissionResult(
         t.name, t.antenna, t.frequency_mhz, t.power_w, t.average_power_w, sol.feed_impedance_ohm,
         ratio, levels[0].ratio_public, tuple(levels), areas, crossings,
         power_ceiling_w(t.power_w, areas), model_distance_m(pl, [m.ratio_public for m in levels], structure), ff,
-        gain_dbi, masked, tuple(tx_notes), levels[0].judged.checks,
+        gain_dbi, masked, tuple(tx_notes), levels[0].judged.checks, sec,
     )
+
+
+def _feed_m(s: antennas.Structure) -> tuple[float, float, float]:
+    w = s.wires[s.feed_wire]
+    return tuple(float(w.start_m[i] + s.feed_at * (w.end_m[i] - w.start_m[i])) for i in range(3))
 
 
 def area_results(site: Site, pl: Plan, levels: list[Judged]) -> tuple[AreaResult, ...]:

@@ -294,15 +294,16 @@ def _on_sigterm(signum, frame):
 @click.option("--jobs", type=int, help="worker processes [all cores]")
 @click.option("--force", is_flag=True, help="replace an output folder that an earlier run wrote")
 @click.option("--large", is_flag=True, help="run beyond the size budget")
+@click.option("--paper", type=click.Choice(["a4", "letter"]), default="a4", show_default=True, help="report page size")
 @click.option("--quiet", is_flag=True, help="no progress")
-def run_cmd(site_file, out_dir, jobs, force, large, quiet):
-    """The whole assessment: fields, ratios, area verdicts, maps, report, data."""
+def run_cmd(site_file, out_dir, jobs, force, large, paper, quiet):
+    """The whole assessment: fields, ratios, area verdicts, maps, sections, report, data."""
     site = _load(site_file)
     out = Path(out_dir) if out_dir else Path("nfmap-out") / Path(site_file).stem
-    return _run_site(site, out, _default_jobs(jobs), force, quiet, large)
+    return _run_site(site, out, _default_jobs(jobs), force, quiet, large, paper)
 
 
-def _run_site(site, out: Path, jobs: int, force: bool, quiet: bool, large: bool = False) -> int:
+def _run_site(site, out: Path, jobs: int, force: bool, quiet: bool, large: bool = False, paper: str = "a4") -> int:
     import signal
 
     from . import assess, budget, outfolder
@@ -316,7 +317,7 @@ def _run_site(site, out: Path, jobs: int, force: bool, quiet: bool, large: bool 
             with _progress(est.field_points, jobs, quiet) as bar:
                 cap = None if large else budget.FIELD_POINTS_MAX
                 a = _engine_errors(lambda: assess.assess(site, jobs=jobs, progress=bar.update, max_field_points=cap))
-            res.commit(lambda folder: _write_all(a, folder),
+            res.commit(lambda folder: _write_all(a, folder, paper),
                        {"site_file": Path(site.path).name, "site_sha256": site.sha256})
     except outfolder.OutputError as err:
         raise InputError(str(err)) from None
@@ -375,15 +376,11 @@ def _progress(total: int, jobs: int, quiet: bool):
     return _Lines(total)
 
 
-def _write_all(a, folder: Path) -> None:
-    from . import records
+def _write_all(a, folder: Path, paper: str = "a4") -> None:
+    from . import records, report
 
     records.write_data(a, folder)
-    try:
-        from . import report
-    except ImportError:  # pragma: no cover
-        return
-    report.write_maps_and_report(a, folder)
+    report.write_maps_and_report(a, folder, paper)
 
 
 def _summary(a, out: Path) -> None:
@@ -602,8 +599,9 @@ def deck_cmd(site_file, name):
 @click.option("-o", "--output", "out_dir", type=click.Path(file_okay=False), default="nfmap-demo", show_default=True)
 @click.option("--jobs", type=int)
 @click.option("--force", is_flag=True, help="replace a demo folder that an earlier demo wrote")
+@click.option("--paper", type=click.Choice(["a4", "letter"]), default="a4", show_default=True, help="report page size")
 @click.option("--quiet", is_flag=True)
-def demo_cmd(out_dir, jobs, force, quiet):
+def demo_cmd(out_dir, jobs, force, paper, quiet):
     """Write the bundled example site into the output folder and run it."""
     from importlib import resources
 
@@ -628,4 +626,4 @@ def demo_cmd(out_dir, jobs, force, quiet):
     site_path.write_text(text)
     click.echo(f"example site written to {site_path}")
     site = _load(str(site_path))
-    return _run_site(site, out / "results", _default_jobs(jobs), True, quiet)
+    return _run_site(site, out / "results", _default_jobs(jobs), True, quiet, paper=paper)

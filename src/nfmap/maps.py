@@ -190,32 +190,47 @@ def draw_marks(ax, crossings, worst):
 def declutter(fig, ax) -> list:
     """Move the movable labels (gid ``MOVABLE``) so that no text overlaps another or leaves the plan.
 
-    Greedy: fixed texts first (titles, ticks, legend, caption, contour labels), then each label in
-    drawing order tries offsets on growing rings around its anchor and takes the first free place
-    (a leader line shows the link when it moved); a label that finds none shrinks a little and tries
-    again, and as a last resort is dropped from the plan and returned, so the caller can list it.
-    Returns the labels dropped.
+    Greedy: fixed texts first (titles, ticks, legend, caption), then each label in drawing order tries
+    offsets on growing rings around its anchor and takes the first free place (a leader line shows the
+    link when it moved); a label that finds none shrinks a little and tries again, and as a last resort
+    is hidden and returned, so the caller can name it. The labels take no part in the layout, which is
+    settled first and then frozen, so what was measured is what is drawn.
     """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.text import Annotation, Text
 
     if not isinstance(fig.canvas, FigureCanvasAgg):
         FigureCanvasAgg(fig)  # measuring text needs a renderer; the PNG and PDF writers use their own
+    for t in ax.texts:
+        if t.get_gid() == MOVABLE:
+            t.set_in_layout(False)  # kept inside the plan below: the layout need not make room for them
+    for child in ax.child_axes:
+        child.set_in_layout(False)  # the colour bar (room kept on the right) and the inset (inside the plan)
     fig.canvas.draw()
+    if fig.get_layout_engine() is not None:
+        fig.canvas.draw()  # the constrained layout settles over two passes
+        fig.set_layout_engine("none")  # then it is frozen: what is measured below is what is drawn
+    return _place_labels(fig, ax)
+
+
+def _place_labels(fig, ax) -> list[str]:
+    from matplotlib.text import Annotation, Text
+
     renderer = fig.canvas.get_renderer()
     area = ax.get_window_extent(renderer)
-    movable = [t for t in ax.texts if t.get_gid() == MOVABLE and t.get_visible()]
+    movable = [t for t in ax.texts if t.get_gid() == MOVABLE]
+    for t in movable:
+        t.set_visible(True)
     fixed = [t for t in fig.findobj(Text) if t.get_visible() and t.get_text().strip() and t not in movable]
     taken = [_text_box(t, renderer) for t in fixed]
-    rings = [(0, 0)] + [(r * math.cos(a), r * math.sin(a)) for r in (8, 14, 20, 28, 38, 50, 64)
-                        for a in np.linspace(-math.pi / 2, 1.5 * math.pi, 16, endpoint=False)]
+    rings = [(r * math.cos(a), r * math.sin(a)) for r in (8, 14, 20, 28, 38, 50, 64)
+             for a in np.linspace(-math.pi / 2, 1.5 * math.pi, 16, endpoint=False)]
     dropped = []
     for t in movable:
         base = tuple(t.xyann) if isinstance(t, Annotation) else (0.0, 0.0)
         placed = False
         for size in (t.get_fontsize(), t.get_fontsize() * 0.85):
             t.set_fontsize(size)
-            for dx, dy in [base] + [(base[0] + a, base[1] + b) for a, b in rings[1:]]:
+            for dx, dy in [base] + [(base[0] + a, base[1] + b) for a, b in rings]:
                 t.xyann = (dx, dy)
                 box = _text_box(t, renderer)
                 if not _inside(box, area) or any(box.overlaps(o) for o in taken):
@@ -226,10 +241,11 @@ def declutter(fig, ax) -> list:
             if placed:
                 break
         if not placed:
+            t.xyann = base
             t.set_visible(False)
             dropped.append(t.get_text())
-        elif t.arrow_patch is not None and math.hypot(*t.xyann) < 12:
-            t.arrow_patch.set_visible(False)  # no leader line for a label beside its point
+        elif t.arrow_patch is not None:
+            t.arrow_patch.set_visible(math.hypot(*t.xyann) >= 12)  # a leader line only for a label moved away
     return dropped
 
 
@@ -261,18 +277,24 @@ def map_figure(assessment, ratio, title: str, crossings, areas, caption: str, st
     draw_marks(ax, crossings, worst)
     frame(ax, site, pl)
     draw_inset(ax, pl, ratio, site, structures)
-    ax.set_title(f"{site.title}\n{title}", fontsize=10)
-    cax = ax.inset_axes([1.03, 0.1, 0.035, 0.8])  # glued to the plan, whatever its aspect
+    fig.suptitle(f"{site.title}\n{title}", fontsize=10)  # over the figure: a narrow plan is not squeezed
+    cax = ax.inset_axes([1.03, 0.1, 0.035, 0.8])  # glued to the plan whatever its aspect; room kept on the right
     cb = fig.colorbar(filled, cax=cax, ticks=MAP_LEVELS)
     cb.ax.set_yticklabels([f"{v:g}" for v in MAP_LEVELS])
     cb.set_label(RATIO_LABEL, fontsize=7.5)
     cb.ax.axhline(1.0, color="black", linewidth=2.5)
     add_legend(foot)
+    _settle(fig, ax, foot, caption)
+    return fig
+
+
+def _settle(fig, ax, foot, caption: str) -> None:
+    """Caption, then labels placed (:func:`declutter`); labels that found no room are named in the caption."""
+    cap = _caption(foot, caption, fig.get_figwidth())
     dropped = declutter(fig, ax)
     if dropped:
-        caption += "; labels left out for lack of room: " + ", ".join(d.replace("\n", " ") for d in dropped)
-    _caption(foot, caption, fig.get_figwidth())
-    return fig
+        cap.set_text(_wrap(caption + "; labels left out for lack of room: "
+                           + ", ".join(d.replace("\n", " ") for d in dropped), fig.get_figwidth()))
 
 
 INSET_SMALL = 0.2  # an exceedance zone smaller than this share of the plan gets an enlarged inset
@@ -317,7 +339,8 @@ def draw_inset(ax, pl: Plan, ratio: np.ndarray, site, structures):
     ins.set_xlim(cx - half, cx + half)
     ins.set_ylim(cy - half, cy + half)
     ins.set_aspect("equal")
-    ins.tick_params(labelsize=5.5, length=2)
+    ins.set_xticks([])
+    ins.set_yticks([])  # the title gives the scale
     ins.set_title(f"enlarged: {2 * half:.1g} m across", fontsize=6.5, pad=2)
     for sp in ins.spines.values():
         sp.set_edgecolor("black")
@@ -327,28 +350,52 @@ def draw_inset(ax, pl: Plan, ratio: np.ndarray, site, structures):
 
 
 FOOT_IN = 1.35  # legend and caption band under the plan [in]
+COLOURBAR_IN = 1.0  # room kept on the right for the colour bar glued to the plan [in]
 
 
 def _plan_figure(pl, paper_in: tuple[float, float] | None = None):
     """A figure shaped to the plan (or to a page): the plan axes and, below, a band for legend and caption."""
+    aspect = (pl.y_m[-1] - pl.y_m[0] + 6) / (pl.x_m[-1] - pl.x_m[0] + 10)
     if paper_in is not None:
-        fig = Figure(figsize=paper_in, layout="constrained")
-        plan_in = paper_in[1] - FOOT_IN - 0.4
+        # the plan at the top of the page, the legend and caption right under it, the rest left blank
+        fig = _paper_figure(paper_in)
+        plan_in = min(paper_in[1] - FOOT_IN - 1.0, max(paper_in[0] * aspect + 0.8, 3.5))
+        grid = fig.add_gridspec(3, 1, height_ratios=[plan_in, FOOT_IN, max(paper_in[1] - plan_in - FOOT_IN, 0.01)])
     else:
-        aspect = (pl.y_m[-1] - pl.y_m[0] + 6) / (pl.x_m[-1] - pl.x_m[0] + 10)
         plan_in = min(max(7.5 * aspect, 3.5), 10.0)
         fig = Figure(figsize=(7.5, plan_in + FOOT_IN), layout="constrained")
-    grid = fig.add_gridspec(2, 1, height_ratios=[plan_in, FOOT_IN])
+        grid = fig.add_gridspec(2, 1, height_ratios=[plan_in, FOOT_IN])
+    _keep_right_margin(fig)
     ax = fig.add_subplot(grid[0])
     foot = fig.add_subplot(grid[1])
     foot.set_axis_off()
     return fig, ax, foot
 
 
-def _caption(foot, text: str, width_in: float = 7.5) -> None:
+PAGE_FOOTER_IN = 0.5  # strip kept free at the bottom of a page for the report's footer
+
+
+def _paper_figure(paper_in: tuple[float, float]) -> Figure:
+    fig = Figure(figsize=paper_in, layout="constrained")
+    fig.get_layout_engine().set(rect=(0.0, PAGE_FOOTER_IN / paper_in[1], 1.0, 1.0 - PAGE_FOOTER_IN / paper_in[1]))
+    return fig
+
+
+def _keep_right_margin(fig) -> None:
+    """Room on the right for the colour bar glued to the plan (outside the axes the layout knows)."""
+    eng = fig.get_layout_engine()
+    x, y, w, h = eng.get()["rect"]
+    eng.set(rect=(x, y, w - COLOURBAR_IN / fig.get_figwidth(), h))
+
+
+def _caption(foot, text: str, width_in: float = 7.5):
     """The caption at the bottom of the band, wrapped to the figure's width."""
-    foot.text(0.0, 0.0, "\n".join(textwrap.wrap(text, int(width_in / 0.047))), fontsize=6, color="#333333",
-              ha="left", va="bottom", transform=foot.transAxes)
+    return foot.text(0.0, 0.0, _wrap(text, width_in), fontsize=6, color="#333333", ha="left", va="bottom",
+                     transform=foot.transAxes)
+
+
+def _wrap(text: str, width_in: float) -> str:
+    return "\n".join(textwrap.wrap(text, int(width_in / 0.047)))
 
 
 def add_legend(foot, fields: bool = True):
@@ -402,6 +449,85 @@ def caption_text(assessment) -> str:
     )
 
 
+def section_figure(assessment, t, paper_in: tuple[float, float] | None = None) -> Figure:
+    """The elevation section of one transmission: bands in height, the limit, floors and body lines."""
+    from matplotlib.colors import ListedColormap
+
+    sec = t.section
+    site = assessment.site
+    # a fixed layout in inches (true scale: 1 m across = 1 m up): title, plot, axis label, legend, caption
+    width = paper_in[0] if paper_in else 7.5
+    left, right, top, below, foot_in = 0.8, 1.5, 0.95, 0.75, 1.2
+    span_s, span_z = sec.s_m[-1] - sec.s_m[0], sec.z_m[-1] + 0.5
+    plot_w = width - left - right
+    plot_h = min(plot_w * span_z / span_s, 7.0)
+    plot_h = max(plot_h, 1.2)
+    height = paper_in[1] if paper_in else top + plot_h + below + foot_in + 0.1
+    fig = Figure(figsize=(width, height))
+    bottom_in = height - top - plot_h
+    ax = fig.add_axes([left / width, bottom_in / height, plot_w / width, plot_h / height])
+    foot = fig.add_axes([0.1 / width, (bottom_in - below - foot_in) / height, (width - 0.2) / width,
+                         foot_in / height])
+    foot.set_axis_off()
+    z = np.clip(sec.ratio, 1e-4, 1e4)
+    filled = ax.contourf(sec.s_m, sec.z_m, z, levels=list(BAND_EDGES), cmap=ListedColormap(BAND_COLOURS),
+                         norm=BoundaryNorm(BAND_EDGES, len(BAND_COLOURS)), zorder=1)
+    ax.contour(sec.s_m, sec.z_m, z, levels=[0.5], colors="#666666", linewidths=1.0, linestyles="--", zorder=2)
+    ax.contour(sec.s_m, sec.z_m, z, levels=[1.0], colors="white", linewidths=3.6, zorder=2)
+    ax.contour(sec.s_m, sec.z_m, z, levels=[1.0], colors="black", linewidths=2.0, zorder=3)
+    masked = np.isnan(sec.ratio).astype(float)
+    if masked.any():
+        hatch = ax.contourf(sec.s_m, sec.z_m, masked, levels=[0.5, 1.5], colors="none", hatches=["////"], zorder=3)
+        hatch.set_edgecolor("#9e9e9e")
+    ax.axhspan(-1.0, 0.0, color="#8d6e63", zorder=4)  # the ground
+    for f in sec.floors:
+        st = TIER_STYLE[f.exposure]
+        ax.plot([f.from_s_m, f.to_s_m], [f.floor_m, f.floor_m], color=st["edgecolor"], linewidth=3.0,
+                linestyle="-" if f.exposure != "none" else ":", zorder=5, solid_capstyle="butt")
+        mid = (f.from_s_m + f.to_s_m) / 2
+        if f.exposure != "none":
+            ax.plot([mid, mid], [f.floor_m + sec.body_from_m, f.floor_m + sec.body_to_m], color="black",
+                    linewidth=1.2, zorder=6)
+            ax.plot([mid], [f.floor_m + sec.body_to_m], marker="_", color="black", markersize=6, zorder=6)
+        ax.annotate(f"{f.area} ({f.floor_m:g} m)", (mid, f.floor_m), xytext=(0, -3), textcoords="offset points",
+                    ha="center", va="top", fontsize=6.5, color=st["edgecolor"], zorder=7, gid=MOVABLE,
+                    bbox={"boxstyle": "round,pad=0.1", "fc": "white", "ec": "none", "alpha": 0.8})
+    for (s0, z0), (s1, z1) in sec.wires:
+        ax.plot([s0, s1], [z0, z1], color="white", linewidth=3.2, zorder=7)
+        ax.plot([s0, s1], [z0, z1], color=WIRE_COLOUR, linewidth=1.6, zorder=8)
+    ax.annotate(t.antenna, (0.0, max(z for w in sec.wires for _, z in w)), xytext=(0, 4), textcoords="offset points",
+                ha="center", va="bottom", fontsize=7, color=WIRE_COLOUR, weight="bold", zorder=9, gid=MOVABLE,
+                bbox={"boxstyle": "round,pad=0.1", "fc": "white", "ec": "none", "alpha": 0.8})
+    ax.set_xlim(sec.s_m[0], sec.s_m[-1])
+    ax.set_ylim(-0.5, sec.z_m[-1])
+    ax.set_aspect("equal")
+    compass = (sec.bearing_deg + site.north_deg) % 360
+    ax.set_xlabel(f"distance along the section [m]\n(towards bearing {compass:.0f} deg; 0 at the feed)")
+    ax.set_ylabel("height above ground [m]")
+    how = "as given in the site file" if sec.chosen else "chosen to cross the most floors"
+    fig.suptitle("\n".join([site.title, *textwrap.wrap(f"{t.name}: elevation section through {t.antenna} ({how})",
+                                                        int(width * 10))]), fontsize=10, y=1.0 - 0.08 / height,
+                 va="top")
+    cax = fig.add_axes([(left + plot_w + 0.15) / width, (bottom_in + 0.05 * plot_h) / height, 0.14 / width,
+                        max(0.9 * plot_h, 1.6) / height])  # at least 1.6 in tall, so its labels stay apart
+    cb = fig.colorbar(filled, cax=cax, ticks=MAP_LEVELS)
+    cb.ax.set_yticklabels([f"{v:g}" for v in MAP_LEVELS])
+    cb.set_label("exposure ratio (1 = at the limit)", fontsize=7.5)
+    from matplotlib.lines import Line2D
+
+    handles = [Line2D([], [], color=TIER_STYLE["public"]["edgecolor"], linewidth=3, label="floor of an area"),
+               Line2D([], [], color="black", linewidth=1.2, label="body line (assessed heights)"),
+               Line2D([], [], color="black", linewidth=2.0, label="limit (ratio 1)"),
+               Line2D([], [], color="#666666", linestyle="--", label="half the limit"),
+               Line2D([], [], color=WIRE_COLOUR, linewidth=1.6, label="antenna wire (projected)")]
+    foot.legend(handles=handles, loc="upper center", fontsize=6.5, frameon=False, ncols=3)
+    caption = (f"Point values on the section (no averaging along the body line), every check of "
+               f"{site.standard} against the public tier, the worst shown; {t.frequency_mhz:g} MHz, "
+               f"{t.power_w:g} W PEP. The plan maps judge each area on its own floor with its body line.")
+    _settle(fig, ax, foot, caption)
+    return fig
+
+
 def wires_of(site) -> dict:
     """Every antenna's structure as drawn on the plan, by antenna name."""
     from .assess import _structure, highest_any
@@ -417,7 +543,7 @@ def save_plan(site, path) -> None:
     fig, ax, foot = _plan_figure(pl)
     draw_plan(site, ax, wires_of(site))
     frame(ax, site, pl)
-    ax.set_title(f"{site.title}\nplan and antennas (no fields computed)", fontsize=10)
+    fig.suptitle(f"{site.title}\nplan and antennas (no fields computed)", fontsize=10)
     add_legend(foot, fields=False)
     declutter(fig, ax)
     fig.savefig(path, dpi=170)

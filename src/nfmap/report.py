@@ -14,22 +14,24 @@ from . import __version__, maps
 from .exposure import limits
 from .records import CAUTIONS, map_name
 
-A4_IN = (8.27, 11.69)
+PAPERS_IN = {"a4": (8.27, 11.69), "letter": (8.5, 11.0)}  # ISO 216 A4, US letter
 LINE_IN = 0.19
 
 
 class _Pages:
     """Text pages with wrapping; a new page starts when one is full (pages never overflow)."""
 
-    def __init__(self, pdf: PdfPages, footer: str):
+    def __init__(self, pdf: PdfPages, footer: str, paper_in: tuple[float, float]):
         self.pdf, self.footer, self.fig, self.y, self.page = pdf, footer, None, 0.0, 0
+        self.paper = paper_in
 
     def _new(self):
         self.close()
         self.page += 1
-        self.fig = Figure(figsize=A4_IN)
-        self.y = A4_IN[1] - 0.8
-        self.fig.text(0.5, 0.25 / A4_IN[1], f"{self.footer}  -  page {self.page}", ha="center", fontsize=7, color="#444")
+        self.fig = Figure(figsize=self.paper)
+        self.y = self.paper[1] - 0.8
+        self.fig.text(0.5, 0.25 / self.paper[1], f"{self.footer}  -  page {self.page}", ha="center", fontsize=7,
+                      color="#444")
 
     def close(self):
         if self.fig is not None:
@@ -42,7 +44,7 @@ class _Pages:
         for part in wrapped:
             if self.fig is None or self.y < 0.9:
                 self._new()
-            self.fig.text((0.7 + indent) / A4_IN[0], self.y / A4_IN[1], part, fontsize=size, weight=weight,
+            self.fig.text((0.7 + indent) / self.paper[0], self.y / self.paper[1], part, fontsize=size, weight=weight,
                           family="monospace" if mono else "sans-serif", va="top")
             self.y -= LINE_IN * size / 9
 
@@ -69,9 +71,11 @@ class _Pages:
         self.gap(0.3)
 
     def figure_page(self, fig: Figure):
+        """A figure made at the paper size, with the footer in a strip kept free for it."""
         self.close()
         self.page += 1
-        fig.text(0.5, 0.003, f"{self.footer}  -  page {self.page}", ha="center", fontsize=6, color="#444")
+        fig.text(0.5, 0.25 / self.paper[1], f"{self.footer}  -  page {self.page}", ha="center", fontsize=7,
+                 color="#444")
         self.pdf.savefig(fig)
 
 
@@ -114,30 +118,44 @@ def _count(n: int, word: str) -> str:
     return f"{n} {word}" if n == 1 else f"{n} {word}s"
 
 
-def write_maps_and_report(a, folder: Path) -> None:
+def write_maps_and_report(a, folder: Path, paper: str = "a4") -> None:
+    """The map and section PNGs (each shaped to its content) and report.pdf (every page ``paper`` size)."""
+    if paper not in PAPERS_IN:
+        raise ValueError(f"unknown paper {paper!r}; valid: {', '.join(PAPERS_IN)}")
+    paper_in = PAPERS_IN[paper]
     caption = maps.caption_text(a)
     wires = maps.wires_of(a.site)
-    figs = []
     names = [t.name for t in a.transmissions]
+    pages = []
     for t in a.transmissions:
         title = (f"{t.name}: {t.frequency_mhz:g} MHz, {t.power_w:g} W PEP, {t.average_power_w:.3g} W average\n"
                  f"worst of {' / '.join(CHECK_NAMES[c] for c in t.checks)} at each point; "
                  f"binding: {CHECK_NAMES.get(t.governing_check, '-')}")
-        fig = maps.map_figure(a, t.ratio, title, t.crossings, t.areas, caption, wires)
-        fig.savefig(folder / map_name(t.name, names), dpi=170)
-        figs.append(fig)
-    cfig = maps.map_figure(a, a.combined.ratio, "combined: groups summed check by check; worst check and group",
-                           a.combined.crossings,
-                           a.combined.areas, caption, wires)
-    cfig.savefig(folder / "map-combined.png", dpi=170)
-    write_report(a, folder / "report.pdf", figs, cfig)
+        def draw(size, t=t, title=title):
+            return maps.map_figure(a, t.ratio, title, t.crossings, t.areas, caption, wires, size)
+        draw(None).savefig(folder / map_name(t.name, names), dpi=170)
+        pages.append(draw(paper_in))
+        if t.section is not None:
+            maps.section_figure(a, t).savefig(folder / section_name(t.name, names), dpi=170)
+            pages.append(maps.section_figure(a, t, paper_in))
+    ctitle = "combined: groups summed check by check; worst check and group"
+    maps.map_figure(a, a.combined.ratio, ctitle, a.combined.crossings, a.combined.areas, caption,
+                    wires).savefig(folder / "map-combined.png", dpi=170)
+    pages.append(maps.map_figure(a, a.combined.ratio, ctitle, a.combined.crossings, a.combined.areas, caption, wires,
+                                 paper_in))
+    write_report(a, folder / "report.pdf", pages, paper_in)
 
 
-def write_report(a, path: Path, figs, cfig) -> None:
+def section_name(transmission: str, names) -> str:
+    """The section file of a transmission, beside its map (same stem)."""
+    return map_name(transmission, names).replace("map-", "section-", 1)
+
+
+def write_report(a, path: Path, figs, paper_in: tuple[float, float] = PAPERS_IN["a4"]) -> None:
     site = a.site
     today = dt.date.today().isoformat()
     with PdfPages(path, metadata={"Title": f"RF exposure assessment: {site.title}", "Creator": f"nfmap {__version__}"}) as pdf:
-        pg = _Pages(pdf, f"{site.title} - nfmap {__version__} - {today}")
+        pg = _Pages(pdf, f"{site.title} - nfmap {__version__} - {today}", paper_in)
         pg.line("RF exposure assessment", size=18, weight="bold")
         pg.line(site.title, size=13)
         pg.gap()
@@ -220,7 +238,6 @@ def write_report(a, path: Path, figs, cfig) -> None:
             pg.line(ref)
         for fig in figs:
             pg.figure_page(fig)
-        pg.figure_page(cfig)
         pg.close()
 
 
@@ -235,7 +252,7 @@ def _area_table(pg, areas, check_ids, quantity: bool = False) -> None:
                      f"({ar.where_m[0]:.1f}, {ar.where_m[1]:.1f})" if ar.where_m else "-",
                      f"{ar.exceedance_area_m2:.1f}", str(ar.masked_points)])
     pg.table(["area", "tier", "worst", "by", *[CHECK_SHORT[c] for c in check_ids], "where m", "over m^2", "masked"],
-             rows, [24, 12, 7, 9, *[7 for _ in check_ids], 13, 8, 6])
+             rows, [22, 12, 8, 9, *[8 for _ in check_ids], 13, 8, 6])
 
 
 def _checks_section(pg, a) -> None:
@@ -322,7 +339,7 @@ def _crossing_lines(pg, crossings) -> None:
     for k, c in enumerate(crossings, 1):
         what = "the zone too close to a wire for the model (not shown compliant)" if c.masked else "the region at or above the limit"
         pg.line(f"{k}. {c.line} crosses {what}: from ({c.from_m[0]:.1f}, {c.from_m[1]:.1f}) to ({c.to_m[0]:.1f}, "
-                f"{c.to_m[1]:.1f}) m, {c.length_m:.1f} m long (numbered {k} on the map)", indent=0.2)
+                f"{c.to_m[1]:.1f}), {c.length_m:.1f} m (numbered {k} on the map)", indent=0.2)
 
 
 def _ceiling(t) -> str:

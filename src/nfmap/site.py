@@ -78,6 +78,7 @@ class AntennaSpec:
     position_m: tuple[float, float]
     params: tuple[tuple[str, Any], ...]  # builder keyword arguments (resonant_mhz trimmed to a length_m)
     trim: Trim | None = None  # how resonant_mhz became the length in params
+    section_deg: float | None = None  # compass bearing of its elevation section (None: chosen by nfmap)
 
     def param(self, key: str, default=None):
         return dict(self.params).get(key, default)
@@ -427,7 +428,7 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
             c.bad(where, a, "a table")
             continue
         kind = c.text(a, "kind", where, choices=tuple(antennas.BUILDERS), required=True)
-        allowed = {"name", "kind", "position_m"} | ANTENNA_KEYS.get(kind, set())
+        allowed = {"name", "kind", "position_m", "section_deg"} | ANTENNA_KEYS.get(kind, set())
         c.keys(a, allowed, where)
         nm = c.name(a, where)
         pos = a.get("position_m")
@@ -444,6 +445,7 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
             if req not in a:
                 c.problems.append(f"{c.path}: {where}.{req}: missing; allowed: see the {kind} builder's parameters")
         params = {}
+        section = c.num(a, "section_deg", where)
         for k in ANTENNA_KEYS[kind] & set(a):
             v = a[k]
             if k in ("radials", "elements"):
@@ -464,7 +466,8 @@ def parse(doc: dict, name: str = "<site>", sha256: str = "") -> Site:
         if kind in ("dipole", "vertical") and ("length_m" in a) == ("resonant_mhz" in a):
             c.problems.append(f"{c.path}: {where}: give exactly one of length_m and resonant_mhz")
         if nm and pos is not None:
-            ant_list.append(AntennaSpec(nm, kind, (float(pos[0]), float(pos[1])), tuple(sorted(params.items()))))
+            ant_list.append(AntennaSpec(nm, kind, (float(pos[0]), float(pos[1])), tuple(sorted(params.items())),
+                                        section_deg=section))
     _unique(c, [a.name for a in ant_list], "antenna")
     if not ant_list and not any("antenna[" in p for p in c.problems):
         c.problems.append(f"{name}: antenna: missing; allowed: at least one [[antenna]] table")
@@ -667,7 +670,8 @@ def trim_resonant(site: Site, spec: AntennaSpec) -> AntennaSpec:
         l0, z0, l1, z1 = l1, z1, l2, reactance(l2)
         n += 1
     trim = Trim(float(f), _radiator_length_m(rule, spec.kind), float(l1), z1, n)
-    return AntennaSpec(spec.name, spec.kind, spec.position_m, tuple(sorted((*others, ("length_m", float(l1))))), trim)
+    return AntennaSpec(spec.name, spec.kind, spec.position_m, tuple(sorted((*others, ("length_m", float(l1))))), trim,
+                       spec.section_deg)
 
 
 def _radiator_length_m(s: Structure, kind: str) -> float:
