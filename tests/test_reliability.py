@@ -328,3 +328,13 @@ def test_unusual_values_are_warned(tmp_path):
         site.load(p)
     said = " ".join(str(w.message) for w in got)
     assert "power_w = 0.4 W PEP is unusual" in said and "feedline_loss_db = 12 dB" in said
+
+
+def test_a_record_follows_the_users_umask(tmp_path):
+    old = os.umask(0o022)
+    try:
+        rec = _record(tmp_path / "rec")
+    finally:
+        os.umask(old)
+    assert rec.stat().st_mode & 0o777 == 0o755  # an ordinary folder, not 0700
+    assert (rec / "results.json").stat().st_mode & 0o777 == 0o644

@@ -85,6 +85,7 @@ class AreaResult:
     by_check: tuple[tuple[str, float | None], ...] = ()
     covered_by: tuple[str, ...] = ()  # no point of its own: stricter overlapping areas take all of it
     empty: bool = False  # no lattice point falls inside it: not assessed (refine grid.spacing_m)
+    masked_by: tuple[str, ...] = ()  # the antennas whose wires mask its points
 
     @property
     def over(self) -> bool:
@@ -624,9 +625,11 @@ def area_results(site: Site, pl: Plan, levels: list[Judged]) -> tuple[AreaResult
             continue
         j = levels[k]
         vals = np.where(sel, j.ratio, np.nan)
-        masked = int((sel & np.isnan(j.ratio)).sum())
+        hidden = sel & np.isnan(j.ratio)
+        masked = int(hidden.sum())
+        by = _masking_antennas(site, xx[hidden], yy[hidden]) if masked else ()
         if not np.isfinite(vals).any():
-            out.append(AreaResult(name, tier, None, None, None, 0.0, masked))
+            out.append(AreaResult(name, tier, None, None, None, 0.0, masked, masked_by=by))
             continue
         iy, ix = np.unravel_index(np.nanargmax(vals), vals.shape)
         g, c = int(j.governing[iy, ix]), int(j.check[iy, ix])
@@ -638,10 +641,25 @@ def area_results(site: Site, pl: Plan, levels: list[Judged]) -> tuple[AreaResult
             AreaResult(
                 name, tier, float(vals[iy, ix]), (float(xx[iy, ix]), float(yy[iy, ix])),
                 ratios.GOVERNING[g] if g >= 0 else None, float((vals >= 1.0).sum() * cell_m2), masked,
-                j.checks[c] if c >= 0 else None, tuple(each),
+                j.checks[c] if c >= 0 else None, tuple(each), masked_by=by,
             )
         )
     return tuple(out)
+
+
+def _masking_antennas(site: Site, x_m: np.ndarray, y_m: np.ndarray) -> tuple[str, ...]:
+    """The antennas nearest (in plan) to masked points: those whose wires mask them."""
+    tracks = {}
+    for spec in site.antennas:
+        st = _structure(site, spec.name, highest_any(site))
+        tracks[spec.name] = shapely.union_all([shapely.LineString([w.start_m[:2], w.end_m[:2]])
+                                               if w.start_m[:2] != w.end_m[:2] else shapely.Point(w.start_m[:2])
+                                               for w in st.wires])
+    names = []
+    for x, y in zip(x_m.tolist(), y_m.tolist(), strict=True):
+        p = shapely.Point(x, y)
+        names.append(min(tracks, key=lambda n: tracks[n].distance(p)))
+    return tuple(dict.fromkeys(names))
 
 
 ELSEWHERE = "elsewhere"

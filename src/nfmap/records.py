@@ -161,6 +161,7 @@ def results_doc(a: Assessment) -> dict:
                 for g in c.group_results
             ],
         },
+        "limit_sources": limit_sources(site),
         "over_limit": a.over,
         "warnings": list(a.warnings),
         "cautions": list(CAUTIONS),
@@ -213,6 +214,23 @@ def exceedance_features(a: Assessment) -> list[dict]:
 
 def _feature(region, props: dict) -> dict:
     return {"type": "Feature", "properties": props, "geometry": shapely.orient_polygons(region)}
+
+
+def limit_sources(site) -> list[dict]:
+    """Every limit table the assessment used: its source as its header states it, and whether the values
+    were read in a published reproduction or are still from memory."""
+    seen, out = set(), []
+    for t in site.transmissions:
+        for c in checks.checks_for(site.standard, t.frequency_mhz):
+            for tid in dict.fromkeys((c.table, c.main_table or c.table)):
+                for tier in limits.EXPOSURES:
+                    if (tid, tier) in seen:
+                        continue
+                    seen.add((tid, tier))
+                    tab = limits.table(tid, tier)
+                    out.append({"table": tid, "exposure": tier, "source": tab.source,
+                                "from_memory": "from memory" in tab.source})
+    return out
 
 
 def geojson_doc(a: Assessment) -> tuple[str, dict]:

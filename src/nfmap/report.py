@@ -12,7 +12,7 @@ from matplotlib.figure import Figure
 
 from . import __version__, maps
 from .exposure import limits
-from .records import CAUTIONS, map_name
+from .records import CAUTIONS, limit_sources, map_name
 
 PAPERS_IN = {"a4": (8.27, 11.69), "letter": (8.5, 11.0)}  # ISO 216 A4, US letter
 LINE_IN = 0.19
@@ -97,8 +97,9 @@ def verdict_sentence(area, over_word="OVER THE LIMIT") -> str:
         return (f"{area.name}: NOT ASSESSED: no lattice point falls inside it; not shown within limit (make "
                 "grid.spacing_m smaller than the area).")
     if area.max_ratio is None:
-        return (f"{area.name}: every point lies too close to a wire for the model "
-                f"({_count(area.masked_points, 'plan point')}); not shown within limit.")
+        whose = " of " + ", ".join(repr(n) for n in area.masked_by) if area.masked_by else ""
+        return (f"{area.name}: every point lies too close to the wires{whose} for the model "
+                f"({_count(area.masked_points, 'plan point')}); not shown within limit{MASK_FIX}.")
     x, y = area.where_m
     state = over_word if area.max_ratio >= 1 else ("not shown within limit" if area.masked_points else "within limit")
     by = f" ({CHECK_NAMES.get(area.check, area.check)} check)" if area.check else ""
@@ -107,10 +108,16 @@ def verdict_sentence(area, over_word="OVER THE LIMIT") -> str:
     if area.max_ratio >= 1:
         text += f", {area.exceedance_area_m2:.1f} m^2 at or above the limit"
     if area.masked_points:
+        whose = " of " + ", ".join(repr(n) for n in area.masked_by) if area.masked_by else ""
         text += (f"; {_count(area.masked_points, 'plan point')} {'lies' if area.masked_points == 1 else 'lie'} too "
-                 "close to a wire for the model and " + ("is" if area.masked_points == 1 else "are") + " not shown "
-                 "within limit")
+                 f"close to the wires{whose} for the model and " + ("is" if area.masked_points == 1 else "are")
+                 + " not shown within limit" + MASK_FIX)
     return text + "."
+
+
+MASK_FIX = (" (the usual fix: keep people off that zone with a fenced area of exposure = \"none\" drawn around "
+            "the antenna, as the shape of the accessible area; or bring the wire no closer than its exclusion "
+            "distance to where people stand)")
 
 
 def _count(n: int, word: str) -> str:
@@ -236,6 +243,10 @@ def write_report(a, path: Path, figs, paper_in: tuple[float, float] = PAPERS_IN[
         pg.heading("References")
         for ref in REFERENCES:
             pg.line(ref)
+        pg.heading("Where the limit values were read")
+        for src in limit_sources(site):
+            flag = "FROM MEMORY (not yet read in a published copy)" if src["from_memory"] else "read"
+            pg.line(f"- {src['table']} ({src['exposure']}): {flag}. {src['source']}", size=8)
         for fig in figs:
             pg.figure_page(fig)
         pg.close()
