@@ -442,6 +442,101 @@ def _ring_ratio(site: Site, workers: engine.Workers) -> float:
 
 
 ROTATOR_HEADINGS_DEG = tuple(range(0, 360, 45))
+ENVELOPE_STEP_DEG = 2.0
+ENVELOPE_DR_M = 0.25  # radial step of the envelope (at most half the lattice spacing)
+
+
+def rotator_envelope(site: Site, pl: Plan, t, workers) -> list[LevelMaps]:
+    """A beam on a rotator: per level, the worst over every heading of its field, exact in azimuth.
+
+    Turning the beam about its mast turns its field: the field at a plan point for some heading is the
+    heading-0 field at the point turned about the mast. So the beam alone (other antennas absent) is
+    solved once at heading 0 and evaluated on circles about the mast (every ``ENVELOPE_STEP_DEG``, at
+    radii ``ENVELOPE_DR_M`` apart or closer, on every level's body line); each radius keeps the largest
+    body-reduced E and H (and spatial peaks) over the circle, and each plan point takes the larger
+    value of the two radii bracketing its own. Ratios are then judged as for any point. A body line
+    masked at any azimuth is masked.
+    """
+    spec = site.antenna(t.antenna)
+    mx, my = spec.position_m
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", antennas.ModelRuleWarning)
+        beam = build(site, spec, t.frequency_mhz, 0.0)
+    model = engine.Model((beam,), 0, t.frequency_mhz, site.ground)
+    xx, yy = np.meshgrid(pl.x_m, pl.y_m)
+    r_plan = np.hypot(xx - mx, yy - my)
+    dr = min(ENVELOPE_DR_M, pl.spacing_m / 2)
+    phi = np.radians(np.arange(0.0, 360.0, ENVELOPE_STEP_DEG))
+    body = site.grid.body.heights_m()
+    out = []
+    for lv in pl.levels:
+        rr = r_plan[lv.place] if lv.place.any() else r_plan.ravel()
+        radii = np.arange(math.floor(rr.min() / dr), math.ceil(rr.max() / dr) + 1) * dr
+        z = lv.floor_m + body
+        rg, pg, zg = np.meshgrid(radii, phi, z, indexing="ij")  # (nr, nphi, nz)
+        pts = np.column_stack([(mx + rg * np.sin(pg)).ravel(), (my + rg * np.cos(pg)).ravel(), zg.ravel()])
+        nf = engine.near_fields(model, pts, t.envelope_power_w, jobs=workers)
+        shape = (len(radii), len(phi), len(z))
+        e = np.moveaxis(engine.rms_magnitude(nf.e_v_per_m).reshape(shape), 2, 0)  # (nz, nr, nphi)
+        h = np.moveaxis(engine.rms_magnitude(nf.h_a_per_m).reshape(shape), 2, 0)
+        per_r = []
+        for v in (averaging.body_reduce(e, site.grid.spatial), averaging.body_reduce(h, site.grid.spatial),
+                  averaging.spatial_peak(e), averaging.spatial_peak(h)):
+            per_r.append(np.max(v, axis=1))  # over azimuth; NaN (masked anywhere on the circle) stays NaN
+        pos = r_plan / dr - radii[0] / dr
+        k = np.clip(np.floor(pos + 1e-9).astype(int), 0, len(radii) - 1)
+        on_sample = np.abs(pos - np.round(pos)) < 1e-6  # a point on a sampled radius needs no neighbour
+        k1 = np.where(on_sample, k, np.clip(k + 1, 0, len(radii) - 1))
+        fields = [np.where(np.isnan(v[k]) | np.isnan(v[k1]), np.nan, np.fmax(v[k], v[k1])) for v in per_r]
+        e_b, h_b, e_p, h_p = (np.where(lv.place, f, np.nan) for f in fields)
+        judged, r_pub = judge_level(site, lv, t, e_b, h_b, e_p, h_p)
+        out.append(LevelMaps(lv.floor_m, t.envelope_power_w, judged, r_pub, e_b, h_b, e_p, h_p))
+    return out
+
+
+def point_fields(site: Site, t, pts: np.ndarray):
+    """rms E [V/m] and H [A/m] at points at the envelope power, the masked flags and one solution's fields.
+
+    For a beam on a rotator: the largest over the full solves at ``ROTATOR_HEADINGS_DEG`` and over the
+    envelope (the beam alone turned about its mast every ``ENVELOPE_STEP_DEG``), E and H each.
+    """
+    headings = headings_for(site, t.antenna)
+    first = None
+    e_all, h_all, m_all = [], [], []
+    for heading in headings:
+        nf = engine.near_fields(model_for(site, t.name, heading_deg=heading), pts, t.envelope_power_w)
+        first = first or nf
+        e_all.append(engine.rms_magnitude(nf.e_v_per_m))
+        h_all.append(engine.rms_magnitude(nf.h_a_per_m))
+        m_all.append(nf.masked)
+    if len(headings) > 1:
+        spec = site.antenna(t.antenna)
+        mx, my = spec.position_m
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", antennas.ModelRuleWarning)
+            beam = build(site, spec, t.frequency_mhz, 0.0)
+        phi = np.radians(np.arange(0.0, 360.0, ENVELOPE_STEP_DEG))
+        r = np.hypot(pts[:, 0] - mx, pts[:, 1] - my)
+        circ = np.column_stack([(mx + r[:, None] * np.sin(phi)).ravel(), (my + r[:, None] * np.cos(phi)).ravel(),
+                                np.repeat(pts[:, 2], len(phi))])
+        nf = engine.near_fields(engine.Model((beam,), 0, t.frequency_mhz, site.ground), circ, t.envelope_power_w)
+        e_all.append(np.max(engine.rms_magnitude(nf.e_v_per_m).reshape(len(pts), len(phi)), axis=1))
+        h_all.append(np.max(engine.rms_magnitude(nf.h_a_per_m).reshape(len(pts), len(phi)), axis=1))
+        m_all.append(nf.masked.reshape(len(pts), len(phi)).any(axis=1))
+    masked = np.any(m_all, axis=0)
+    e = np.where(masked, np.nan, np.nanmax(np.where(np.isnan(e_all), -np.inf, e_all), axis=0))
+    h = np.where(masked, np.nan, np.nanmax(np.where(np.isnan(h_all), -np.inf, h_all), axis=0))
+    return e, h, masked, first
+
+
+def _difference_db(a: list[np.ndarray], b: list[np.ndarray]) -> float:
+    """Largest |10 log10(a / b)| where either is 0.1 or more (both computed) [dB]."""
+    worst = 0.0
+    for x, y in zip(a, b, strict=True):
+        sel = np.isfinite(x) & np.isfinite(y) & (np.fmax(x, y) >= 0.1) & (x > 0) & (y > 0)
+        if sel.any():
+            worst = max(worst, float(np.max(np.abs(10 * np.log10(x[sel] / y[sel])))))
+    return worst
 
 
 def headings_for(site: Site, antenna: str) -> tuple[float | None, ...]:
@@ -544,11 +639,6 @@ def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
     """
     tx_notes: list[str] = []
     headings = headings_for(site, t.antenna)
-    if len(headings) > 1:
-        tx_notes.append(
-            f"{t.antenna}: beam on a rotator, assessed at {len(headings)} headings every "
-            f"{360 // len(headings)} degrees; each point shows its worst heading"
-        )
     levels = None
     for heading in headings:
         model = model_for(site, t.name, tx_notes, heading_deg=heading)
@@ -557,6 +647,16 @@ def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
         if heading in (None, 0):
             first_sol, first_model = sol, model
     sol, model = first_sol, first_model
+    if len(headings) > 1:
+        env = rotator_envelope(site, pl, t, workers)
+        diff_db = _difference_db([m.ratio for m in env], [m.ratio for m in levels])
+        levels = _merge_headings(levels, env)
+        tx_notes.append(
+            f"{t.antenna}: beam on a rotator: every point keeps the worst of the envelope over all headings "
+            f"(every {ENVELOPE_STEP_DEG:g} degrees, the beam alone, its field rotated about the mast) and of "
+            f"{len(headings)} full solves every {360 // len(headings)} degrees with the other antennas in the model; "
+            f"where the ratio is 0.1 or more the two differ by up to {diff_db:.1f} dB"
+        )
     for s in model.structures:
         for n in s.notes:
             if n not in tx_notes:

@@ -516,7 +516,7 @@ def probe_cmd(site_file, at, exposure, only, as_json):
     """Fields and exposure ratio at given points, per transmission."""
     import numpy as np
 
-    from . import assess, engine
+    from . import assess
     from .exposure import checks, ratios
 
     site = _load(site_file)
@@ -535,18 +535,16 @@ def probe_cmd(site_file, at, exposure, only, as_json):
     for t in site.transmissions:
         if only and t.name not in only:
             continue
-        model = assess.model_for(site, t.name)
-        # fields at the envelope power; each check scales them to its own time base
-        nf = _engine_errors(lambda m=model, t=t: engine.near_fields(m, pts, t.envelope_power_w))
-        e = engine.rms_magnitude(nf.e_v_per_m)
-        h = engine.rms_magnitude(nf.h_a_per_m)
+        # fields at the envelope power; each check scales them to its own time base; a beam on a rotator
+        # gives its worst over every heading (the full solves and the envelope about the mast)
+        e, h, masked_pts, nf = _engine_errors(lambda t=t: assess.point_fields(site, t, pts))
         avg = math.sqrt(t.average_power_w / t.envelope_power_w)
         z = nf.solution.feed_impedance_ohm
         txs.append({"name": t.name, "frequency_mhz": t.frequency_mhz, "feed_impedance_ohm": [z.real, z.imag],
                     "input_power_w": t.average_power_w, "average_power_w": t.average_power_w,
                     "envelope_power_w": t.envelope_power_w})
         for k, (x, y, zz) in enumerate(pts):
-            masked = bool(nf.masked[k])
+            masked = bool(masked_pts[k])
             by_check = {}
             for c in checks.checks_for(site.standard, t.frequency_mhz):
                 r, _ = ratios.exposure_ratio(e[k : k + 1], h[k : k + 1], checks.check_limits(c, tiers[k], t.frequency_mhz))
