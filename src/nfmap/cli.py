@@ -570,6 +570,55 @@ def probe_cmd(site_file, at, exposure, only, as_json):
     return EXIT_OK
 
 
+@main.command("survey")
+@click.argument("site_file", type=click.Path(dir_okay=False))
+@click.argument("readings_file", type=click.Path(dir_okay=False))
+@click.option("-o", "--output", "out_dir", type=click.Path(file_okay=False), help="output folder [nfmap-out/<stem>-survey]")
+@click.option("--force", is_flag=True, help="replace an output folder that an earlier survey wrote")
+@click.option("--paper", type=click.Choice(["a4", "letter"]), default="a4", show_default=True)
+@click.option("--json", "as_json", is_flag=True, help="print one JSON document (the files are written too)")
+def survey_cmd(site_file, readings_file, out_dir, force, paper, as_json):
+    """Measured readings against the model: a table, a map and a PDF page."""
+    from . import outfolder, report, survey
+
+    site = _load(site_file)
+    try:
+        rows, problems = survey.read(readings_file, site)
+    except survey.SurveyError as err:
+        raise InputError(str(err)) from None
+    for p in problems:
+        click.echo(f"nfmap: skipped: {p}", err=True)
+    sv = _engine_errors(lambda: survey.compare(site, readings_file, rows, problems))
+    for p in sv.problems[len(problems):]:
+        click.echo(f"nfmap: skipped: {p}", err=True)
+    out = Path(out_dir) if out_dir else Path("nfmap-out") / f"{Path(site_file).stem}-survey"
+    try:
+        with outfolder.reserved(out, force) as res:
+            res.commit(lambda folder: report.write_survey(sv, folder, paper),
+                       {"site_file": Path(site.path).name, "site_sha256": site.sha256})
+    except outfolder.OutputError as err:
+        raise InputError(str(err)) from None
+    doc = {"site_sha256": site.sha256, "readings_file": Path(readings_file).name,
+           "median_difference_db": sv.median_db, "max_abs_difference_db": sv.max_abs_db,
+           "summary": survey.offset_sentence(sv), "skipped": list(sv.problems),
+           "readings": [{"line": c.reading.line, "x_m": c.reading.x_m, "y_m": c.reading.y_m, "z_m": c.reading.z_m,
+                         "transmission": c.reading.transmission, "probe": c.reading.probe, "quantity": c.quantity,
+                         "measured": c.measured, "model": c.model, "difference_db": c.difference_db,
+                         "verdict": c.verdict} for c in sv.rows]}
+    if as_json:
+        _json(doc)
+        return EXIT_OK if sv.rows else EXIT_INPUT
+    for c in sv.rows:
+        r = c.reading
+        unit = "V/m" if c.quantity == "E" else "A/m"
+        click.echo(f"line {r.line}: ({r.x_m:g}, {r.y_m:g}, {r.z_m:g}) m {r.transmission}: {c.quantity} measured "
+                   f"{c.measured:.3g} {unit}, model {c.model:.3g} {unit}: {c.difference_db:+.1f} dB, {c.verdict}")
+    click.echo(survey.offset_sentence(sv))
+    click.echo(f"written to {out}/ (survey.csv, survey-map.png, survey.pdf)")
+    click.echo("A model is not a measurement, and a reading is not an assessment; a qualified assessment prevails.")
+    return EXIT_OK if sv.rows else EXIT_INPUT
+
+
 @main.command("deck")
 @click.argument("site_file", type=click.Path(dir_okay=False))
 @click.option("--transmission", "name", required=True, help="the transmission's name")

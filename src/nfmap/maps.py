@@ -535,6 +535,38 @@ def wires_of(site) -> dict:
     return {a.name: _structure(site, a.name, highest_any(site)) for a in site.antennas}
 
 
+SURVEY_COLOURS = {"agrees within 3 dB": "#1a9850", "agrees within 6 dB": "#fdae61", "disagrees": "#b2182b"}
+SURVEY_MARKERS = {"agrees within 3 dB": "o", "agrees within 6 dB": "s", "disagrees": "X"}
+
+
+def survey_figure(sv, paper_in: tuple[float, float] | None = None) -> Figure:
+    """The plan with each reading marked by its verdict (colour and shape) and labelled with its difference."""
+    from matplotlib.lines import Line2D
+
+    from .assess import plan
+
+    site = sv.site
+    pl = plan(site)
+    fig, ax, foot = _plan_figure(pl, paper_in)
+    draw_plan(site, ax, wires_of(site))
+    for c in sv.rows:
+        r = c.reading
+        ax.plot([r.x_m], [r.y_m], marker=SURVEY_MARKERS[c.verdict], markersize=8, color=SURVEY_COLOURS[c.verdict],
+                markeredgecolor="black", zorder=12)
+        ax.annotate(f"{c.difference_db:+.1f} dB {c.quantity}", (r.x_m, r.y_m), xytext=(6, 6),
+                    textcoords="offset points", fontsize=6.5, zorder=12, gid=MOVABLE,
+                    bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "black", "lw": 0.5},
+                    arrowprops={"arrowstyle": "-", "color": "#444444", "lw": 0.6, "shrinkA": 0, "shrinkB": 3})
+    frame(ax, site, pl)
+    fig.suptitle(f"{site.title}\nreadings against the model (measured - model, dB)", fontsize=10)
+    handles = [Line2D([], [], marker=SURVEY_MARKERS[v], color="none", markerfacecolor=SURVEY_COLOURS[v],
+                      markeredgecolor="black", markersize=7, label=v) for v in SURVEY_COLOURS]
+    foot.legend(handles=handles, loc="upper center", fontsize=6.5, frameon=False, ncols=3)
+    _settle(fig, ax, foot, "E for electric probes, H for loops; the model at each reading's carrier power less the "
+                           f"feedline loss; nfmap {__version__}")
+    return fig
+
+
 def save_plan(site, path) -> None:
     """The plan and antennas, no fields (for ``check``)."""
     from .assess import plan

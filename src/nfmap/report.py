@@ -413,3 +413,53 @@ REFERENCES = [
     "[6] Rec. ITU-R P.527-3, Electrical characteristics of the surface of the Earth, 1992.",
     "[7] ICNIRP, Guidelines for limiting exposure to time-varying electric and magnetic fields (1 Hz to 100 kHz), Health Phys. 99(6):818-836, 2010 (levels read in a textbook reproduction).",
 ]
+
+
+def write_survey(sv, folder: Path, paper: str = "a4") -> None:
+    """survey.csv, survey-map.png and survey.pdf for a :class:`nfmap.survey.Survey`."""
+    import csv
+
+    from .survey import offset_sentence
+
+    paper_in = PAPERS_IN[paper]
+    with open(folder / "survey.csv", "w", newline="") as f:
+        w = csv.writer(f)
+        w.writerow(["line", "x_m", "y_m", "z_m", "transmission", "probe", "quantity", "measured", "model", "unit_si",
+                    "difference_db", "verdict"])
+        for c in sv.rows:
+            r = c.reading
+            w.writerow([r.line, r.x_m, r.y_m, r.z_m, r.transmission, r.probe, c.quantity, f"{c.measured:.6g}",
+                        f"{c.model:.6g}", "V/m" if c.quantity == "E" else "A/m", f"{c.difference_db:.2f}", c.verdict])
+    maps.survey_figure(sv).savefig(folder / "survey-map.png", dpi=170)
+    today = dt.date.today().isoformat()
+    with PdfPages(folder / "survey.pdf", metadata={"Title": f"Readings against the model: {sv.site.title}",
+                                                   "Creator": f"nfmap {__version__}"}) as pdf:
+        pg = _Pages(pdf, f"{sv.site.title} - nfmap {__version__} - {today}", paper_in)
+        pg.line("Field readings against the model", size=18, weight="bold")
+        pg.line(sv.site.title, size=13)
+        pg.line(f"Site file: {Path(sv.site.path).name} (SHA-256 {sv.site.sha256[:16]}...); readings: {Path(sv.path).name}")
+        pg.heading("Summary")
+        pg.line(offset_sentence(sv))
+        counts = {v: sum(c.verdict == v for c in sv.rows) for v in ("agrees within 3 dB", "agrees within 6 dB",
+                                                                      "disagrees")}
+        pg.line("; ".join(f"{n} {v}" for v, n in counts.items()) + ".")
+        pg.heading("Readings")
+        rows = [[str(c.reading.line), f"({c.reading.x_m:g}, {c.reading.y_m:g}, {c.reading.z_m:g})", c.reading.transmission,
+                 f"{c.quantity} {c.measured:.3g}", f"{c.model:.3g}", f"{c.difference_db:+.1f}", c.verdict]
+                for c in sv.rows]
+        pg.table(["line", "point m", "transmission", "measured", "model", "dB", "verdict"], rows,
+                 [5, 18, 16, 13, 9, 6, 20])
+        pg.line("E in V/m for electric probes, H in A/m for loops (in the near field a loop does not measure E). The "
+                "model: the transmission's antenna fed with the reading's carrier power less the feedline loss, the "
+                "other antennas passive.", size=8)
+        if sv.problems:
+            pg.heading("Rows skipped")
+            for p in sv.problems:
+                pg.line(f"- {p}", size=8)
+        pg.heading("Cautions")
+        for c in CAUTIONS:
+            pg.line(f"- {c}")
+        pg.line("- A reading is one instrument at one moment: probe calibration, the body of the person holding it and "
+                "objects nearby all change it; readings check the model, they do not replace the assessment.")
+        pg.figure_page(maps.survey_figure(sv, paper_in))
+        pg.close()
