@@ -570,6 +570,55 @@ def probe_cmd(site_file, at, exposure, only, as_json):
     return EXIT_OK
 
 
+@main.command("compare")
+@click.argument("site_files", nargs=-1, required=True, type=click.Path(dir_okay=False))
+@click.option("-o", "--output", "out_dir", type=click.Path(file_okay=False), help="output folder [nfmap-out/compare]")
+@click.option("--jobs", type=int, help="worker processes [all cores]")
+@click.option("--force", is_flag=True, help="replace an output folder that an earlier compare wrote")
+@click.option("--large", is_flag=True, help="run beyond the size budget")
+@click.option("--paper", type=click.Choice(["a4", "letter"]), default="a4", show_default=True)
+@click.option("--json", "as_json", is_flag=True, help="print one JSON document (the files are written too)")
+def compare_cmd(site_files, out_dir, jobs, force, large, paper, as_json):
+    """The same site with different layouts, side by side."""
+    from . import assess, budget, compare, outfolder, report
+
+    if len(site_files) < 2:
+        raise InputError("compare needs at least two site files (layouts of one site)")
+    sites = [_load(p) for p in site_files]
+    try:
+        compare.same_site(sites)
+    except compare.NotSameSite as err:
+        raise InputError(str(err)) from None
+    jobs = _default_jobs(jobs)
+    for s in sites:
+        _budget(s, jobs, large, quiet=True)
+    stems = [Path(p).stem for p in site_files]
+    names = stems if len(set(stems)) == len(stems) else list(site_files)
+    out = Path(out_dir) if out_dir else Path("nfmap-out") / "compare"
+    try:
+        with outfolder.reserved(out, force) as res:
+            layouts = []
+            cap = None if large else budget.FIELD_POINTS_MAX
+            for name, s in zip(names, sites, strict=True):
+                a = _engine_errors(lambda s=s: assess.assess(s, jobs=jobs, max_field_points=cap))
+                layouts.append(compare.Layout(name, a))
+            res.commit(lambda folder: report.write_compare(layouts, folder, paper),
+                       {"site_files": [Path(p).name for p in site_files]})
+    except outfolder.OutputError as err:
+        raise InputError(str(err)) from None
+    if as_json:
+        _json({"best": compare.best_lines(layouts), "layouts": compare.table_rows(layouts)})
+        return EXIT_OK
+    for row in compare.table_rows(layouts):
+        click.echo(f"{row['layout']}: worst {row['worst_ratio']:.3g} of the limit, {row['exceedance_area_m2']:.1f} m^2 "
+                   f"at or above it, {row['crossings']} crossings")
+    for line in compare.best_lines(layouts):
+        click.echo(f"  {line}")
+    click.echo(f"written to {out}/ (compare.pdf, compare.png, compare.json)")
+    click.echo("A model is not a measurement; local regulations and a qualified assessment prevail.")
+    return EXIT_OK
+
+
 @main.command("survey")
 @click.argument("site_file", type=click.Path(dir_okay=False))
 @click.argument("readings_file", type=click.Path(dir_okay=False))

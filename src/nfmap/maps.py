@@ -535,6 +535,45 @@ def wires_of(site) -> dict:
     return {a.name: _structure(site, a.name, highest_any(site)) for a in site.antennas}
 
 
+def compare_figure(layouts, paper_in: tuple[float, float] | None = None) -> Figure:
+    """Layouts side by side on one plan frame and one colour scale (the combined case of each)."""
+    n = len(layouts)
+    cols = min(n, 3)
+    rows = math.ceil(n / cols)
+    x0 = min(lay.assessment.plan.x_m[0] for lay in layouts)
+    x1 = max(lay.assessment.plan.x_m[-1] for lay in layouts)
+    y0 = min(lay.assessment.plan.y_m[0] for lay in layouts)
+    y1 = max(lay.assessment.plan.y_m[-1] for lay in layouts)
+    width = paper_in[0] if paper_in else 3.6 * cols + 1.2
+    cell_h = (width - 1.2) / cols * (y1 - y0) / (x1 - x0) + 0.6
+    height = paper_in[1] if paper_in else rows * cell_h + 1.6
+    fig = Figure(figsize=(width, height), layout="constrained")
+    grid = fig.add_gridspec(rows + 1, cols, height_ratios=[cell_h] * rows + [1.0])
+    filled = None
+    for k, lay in enumerate(layouts):
+        a = lay.assessment
+        ax = fig.add_subplot(grid[k // cols, k % cols])
+        filled, *_ = draw_ratio(a.plan, a.combined.ratio, ax)
+        draw_plan(a.site, ax, wires_of(a.site), label_areas=False)
+        for t in list(ax.texts):
+            t.remove()  # one frame for all: names in the legend and the titles, not on each plan
+        ax.set_xlim(x0, x1)
+        ax.set_ylim(y0, y1)
+        ax.set_aspect("equal")
+        ax.tick_params(labelsize=6.5)
+        ax.set_title(f"{lay.name}\nworst {lay.worst:.2g}; {lay.exceedance_m2:.1f} m^2 over; "
+                     f"{lay.crossings} crossing{'s' if lay.crossings != 1 else ''}", fontsize=8)
+    cb = fig.colorbar(filled, ax=fig.axes, ticks=MAP_LEVELS, shrink=0.8, aspect=30)
+    cb.ax.set_yticklabels([f"{v:g}" for v in MAP_LEVELS])
+    cb.set_label("exposure ratio, combined case (1 = at the limit)", fontsize=7.5)
+    foot = fig.add_subplot(grid[rows, :])
+    foot.set_axis_off()
+    add_legend(foot)
+    fig.suptitle(f"{layouts[0].assessment.site.title}: layouts compared (worst check and group at each point)",
+                 fontsize=10)
+    return fig
+
+
 SURVEY_COLOURS = {"agrees within 3 dB": "#1a9850", "agrees within 6 dB": "#fdae61", "disagrees": "#b2182b"}
 SURVEY_MARKERS = {"agrees within 3 dB": "o", "agrees within 6 dB": "s", "disagrees": "X"}
 

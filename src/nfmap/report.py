@@ -463,3 +463,53 @@ def write_survey(sv, folder: Path, paper: str = "a4") -> None:
                 "objects nearby all change it; readings check the model, they do not replace the assessment.")
         pg.figure_page(maps.survey_figure(sv, paper_in))
         pg.close()
+
+
+def write_compare(layouts, folder: Path, paper: str = "a4") -> None:
+    """compare.png, compare.json and compare.pdf for layouts of one site."""
+    import json
+
+    from .compare import best_lines, table_rows
+
+    paper_in = PAPERS_IN[paper]
+    maps.compare_figure(layouts).savefig(folder / "compare.png", dpi=150)
+    doc = {"best": best_lines(layouts), "layouts": table_rows(layouts)}
+    (folder / "compare.json").write_text(json.dumps(doc, indent=1, allow_nan=False, default=float) + "\n")
+    site = layouts[0].assessment.site
+    today = dt.date.today().isoformat()
+    with PdfPages(folder / "compare.pdf", metadata={"Title": f"Layouts compared: {site.title}",
+                                                    "Creator": f"nfmap {__version__}"}) as pdf:
+        pg = _Pages(pdf, f"{site.title} - layouts compared - nfmap {__version__} - {today}", paper_in)
+        pg.line("Layouts compared", size=18, weight="bold")
+        pg.line(site.title, size=13)
+        pg.line(f"Standard: {limits.STANDARD_TITLES[site.standard]}. Combined case: each group's transmissions added "
+                "check by check, the worst group at each point.")
+        for lay in layouts:
+            pg.line(f"{lay.name}: {Path(lay.assessment.site.path).name}, SHA-256 {lay.assessment.site.sha256[:16]}...",
+                    size=8)
+        pg.heading("Best layout for each criterion")
+        for line in best_lines(layouts):
+            pg.line(f"- {line}")
+        pg.heading("Worst ratio per accessible area (combined case)")
+        names = [a.name for a in layouts[0].assessment.combined.areas if a.exposure != "none"]
+        rows = []
+        for n in names:
+            cells = [n]
+            for lay in layouts:
+                r, c = lay.worst_by_area.get(n, (None, None))
+                cells.append("-" if r is None else f"{r:.3g} {CHECK_SHORT.get(c, '')}".strip())
+            rows.append(cells)
+        widths = [24] + [max(12, min(20, 90 // len(layouts)))] * len(layouts)
+        pg.table(["area", *[lay.name for lay in layouts]], rows, widths)
+        pg.heading("Power ceilings (each transmission alone) and group scales")
+        tx = sorted({t for lay in layouts for t in lay.ceilings})
+        rows = [[t, *[_fmt(lay.ceilings.get(t), ".0f", "-") for lay in layouts]] for t in tx]
+        for g in sorted({g for lay in layouts for g in lay.group_scales}):
+            rows.append([f"group {g} (scale)", *[_fmt(lay.group_scales.get(g)) for lay in layouts]])
+        pg.table(["W PEP", *[lay.name for lay in layouts]], rows, widths)
+        pg.heading("Cautions")
+        for c in CAUTIONS:
+            pg.line(f"- {c}")
+        pg.line("- Each layout's own record (nfmap run) carries its per-transmission maps, sections and assumptions.")
+        pg.figure_page(maps.compare_figure(layouts, paper_in))
+        pg.close()
