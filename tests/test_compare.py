@@ -24,15 +24,15 @@ def test_a_layout_compared_with_itself_gives_identical_figures(tmp_path):
     assert (tmp_path / "compare.pdf").stat().st_size > 0 and (tmp_path / "compare.png").stat().st_size > 0
 
 
-def test_a_moved_antenna_changes_the_figures_and_the_best_layout():
+def test_a_moved_antenna_changes_the_figures():
     s = free_dipole_site(power_w=3000, mode="carrier", fraction=1.0, loss_db=0.0)
     moved = dataclasses.replace(s, antennas=(dataclasses.replace(s.antennas[0], position_m=(-14.0, 0.0)),))
     a, b = compare.Layout("centre", assess.assess(s)), compare.Layout("west", assess.assess(moved))
-    # moved 6 m outside the field, the field's own worst ratio drops, and less of the accessible ground is over
+    # moved 6 m outside the field, the field's own worst ratio drops (the ground around the antenna, public
+    # outside every area, still reads high: every layout is judged everywhere people can stand)
     assert b.worst_by_area["field"][0] < 0.5 * a.worst_by_area["field"][0]
-    assert b.exceedance_m2 != a.exceedance_m2
-    best = compare.best_lines([a, b])[1]
-    assert ("centre" in best) != ("west" in best)
+    rows = {r["layout"]: r for r in compare.table_rows([a, b])}
+    assert rows["west"]["worst_ratio_by_area"]["field"]["ratio"] == b.worst_by_area["field"][0]
 
 
 def test_different_sites_are_refused():
