@@ -619,6 +619,78 @@ def compare_cmd(site_files, out_dir, jobs, force, large, paper, as_json):
     return EXIT_OK
 
 
+@main.command("place")
+@click.argument("site_file", type=click.Path(dir_okay=False))
+@click.option("--antenna", "antenna", required=True, help="the antenna to place")
+@click.option("--within", "within", help="the area it may stand in [the area it stands in now]")
+@click.option("--heights", "heights", help="heights to try, comma-separated [m]")
+@click.option("--headings", "headings", help="headings to try, comma-separated [deg]")
+@click.option("--step", "step_m", type=float, help="candidate spacing [m; default max(grid spacing, 1 m)]")
+@click.option("-o", "--output", "out_dir", type=click.Path(file_okay=False), help="output folder [nfmap-out/<stem>-place]")
+@click.option("--jobs", type=int, help="worker processes [all cores]")
+@click.option("--force", is_flag=True, help="replace an output folder that an earlier place wrote")
+@click.option("--json", "as_json", is_flag=True, help="print one JSON document (the files are written too)")
+def place_cmd(site_file, antenna, within, heights, headings, step_m, out_dir, jobs, force, as_json):
+    """Search positions for one antenna; rank them by allowed power; write the winner's site file."""
+    from . import engine, outfolder, place, report
+    from .site import SiteError
+
+    site = _load(site_file)
+    if antenna not in [a.name for a in site.antennas]:
+        raise InputError(f"--antenna: no antenna named {antenna!r}; allowed: {', '.join(a.name for a in site.antennas)}")
+
+    def numbers(text, opt):
+        if not text:
+            return None
+        try:
+            vals = [float(v) for v in text.split(",")]
+        except ValueError:
+            raise InputError(f"{opt} {text!r}: allowed: numbers separated by commas, e.g. {opt} 6,8,10") from None
+        if not all(math.isfinite(v) for v in vals):
+            raise InputError(f"{opt} {text!r}: allowed: finite numbers")
+        return vals
+
+    hs, hds = numbers(heights, "--heights"), numbers(headings, "--headings")
+    if step_m is not None and not 0.05 <= step_m <= 10:
+        raise InputError(f"--step {step_m:g}: allowed: 0.05 to 10 m")
+    jobs = _default_jobs(jobs)
+    out = Path(out_dir) if out_dir else Path("nfmap-out") / f"{Path(site_file).stem}-place"
+    try:
+        with outfolder.reserved(out, force) as res:
+            with engine.Workers(jobs) as workers:
+                result = _engine_errors(lambda: place.search(site, antenna, within, hs, hds, step_m, workers))
+            if not result.candidates:
+                raise InputError(f"{site_file}: {antenna!r} fits nowhere in {result.within!r} (its wires must lie "
+                                 "inside the area and clear of the other antennas)")
+            result, full = _engine_errors(lambda: place.recheck(result, 3, jobs))
+            text = Path(site_file).read_text()
+            spec = site.antenna(antenna)
+            res.commit(lambda folder: report.write_place(result, full, folder,
+                                                         place.winner_toml(text, antenna, result.candidates[0],
+                                                                           spec.kind)),
+                       {"site_file": Path(site_file).name, "site_sha256": site.sha256})
+    except SiteError as err:
+        raise InputError(err.problems[0]) from None
+    except outfolder.OutputError as err:
+        raise InputError(str(err)) from None
+    doc = report.place_doc(result)
+    if as_json:
+        _json(doc)
+        return EXIT_OK
+    for k, c in enumerate(result.candidates[:10], 1):
+        extra = "".join([f", height {c.height_m:g} m" if c.height_m is not None else "",
+                         f", heading {c.heading_deg:g}" if c.heading_deg is not None else ""])
+        ceil = ", ".join(f"{n} {'no limit' if math.isinf(v) else f'{v:.0f} W'}" for n, v in c.ceilings_w.items())
+        flag = f" ({c.masked_points} points too close to its wires)" if c.masked_points else ""
+        click.echo(f"{k:>3}. ({c.x_m:g}, {c.y_m:g}){extra}: {c.scale:.3g} x the planned power; {ceil}{flag}")
+    for c, sc in result.rechecks:
+        click.echo(f"  full solve at ({c.x_m:g}, {c.y_m:g}): {sc:.3g} x the planned power (search {c.scale:.3g})")
+    click.echo(f"{len(result.candidates)} positions ranked, {result.rejected} where it does not fit; written to {out}/ "
+               "(place.pdf, place-map.png, place.json, winner.toml)")
+    click.echo("A model is not a measurement; local regulations and a qualified assessment prevail.")
+    return EXIT_OK
+
+
 @main.command("survey")
 @click.argument("site_file", type=click.Path(dir_okay=False))
 @click.argument("readings_file", type=click.Path(dir_okay=False))

@@ -574,6 +574,47 @@ def compare_figure(layouts, paper_in: tuple[float, float] | None = None) -> Figu
     return fig
 
 
+def place_figure(search, paper_in: tuple[float, float] | None = None) -> Figure:
+    """Heat map of the allowed power (as a share of the planned power) over the candidate positions."""
+    from matplotlib import colormaps
+
+    from .assess import plan
+    from .place import search_figure_values
+
+    site = search.site
+    pl = plan(site)
+    fig, ax, foot = _plan_figure(pl, paper_in)
+    vals = search_figure_values(search)
+    if vals:
+        xy = np.array(list(vals))
+        v = np.array(list(vals.values()))
+        half = search.step_m / 2
+        cmap = colormaps["viridis"]
+        vmax = max(float(np.nanmax(v)), 1.0)
+        for (x, y), val in zip(xy, v, strict=True):
+            ax.add_patch(Rectangle((x - half, y - half), 2 * half, 2 * half, facecolor=cmap(min(val / vmax, 1.0)),
+                                   edgecolor="none", zorder=1))
+        from matplotlib.cm import ScalarMappable
+        from matplotlib.colors import Normalize
+
+        sm = ScalarMappable(norm=Normalize(0, vmax), cmap=cmap)
+        cax = ax.inset_axes([1.03, 0.1, 0.035, 0.8])
+        cb = fig.colorbar(sm, cax=cax)
+        cb.set_label("allowed power / planned power\n(1 = the plan fits; 0 = not shown within)", fontsize=7.5)
+    others = {k: v for k, v in wires_of(site).items() if k != search.antenna}
+    draw_plan(site, ax, others)
+    if search.candidates:
+        best = search.candidates[0]
+        ax.plot([best.x_m], [best.y_m], marker="*", markersize=14, color="white", markeredgecolor="black", zorder=13)
+    frame(ax, site, pl)
+    fig.suptitle(f"{site.title}\nwhere {search.antenna!r} may stand in {search.within!r} (star: best)", fontsize=10)
+    add_legend(foot, fields=False)
+    _settle(fig, ax, foot, f"Each square: one candidate position ({search.step_m:g} m apart), its best height and heading; "
+                           "the antenna alone (other antennas absent: the best are re-checked with full solves); "
+                           f"nfmap {__version__}")
+    return fig
+
+
 SURVEY_COLOURS = {"agrees within 3 dB": "#1a9850", "agrees within 6 dB": "#fdae61", "disagrees": "#b2182b"}
 SURVEY_MARKERS = {"agrees within 3 dB": "o", "agrees within 6 dB": "s", "disagrees": "X"}
 

@@ -513,3 +513,65 @@ def write_compare(layouts, folder: Path, paper: str = "a4") -> None:
         pg.line("- Each layout's own record (nfmap run) carries its per-transmission maps, sections and assumptions.")
         pg.figure_page(maps.compare_figure(layouts, paper_in))
         pg.close()
+
+
+def place_doc(result) -> dict:
+    """The ranked candidates and the re-checks, machine-readable."""
+    def num(v):
+        return None if v is None or (isinstance(v, float) and math.isinf(v)) else v
+
+    return {
+        "antenna": result.antenna, "within": result.within, "step_m": result.step_m, "rejected": result.rejected,
+        "candidates": [{"x_m": c.x_m, "y_m": c.y_m, "height_m": c.height_m, "heading_deg": c.heading_deg,
+                        "power_scale": num(c.scale), "power_ceiling_w": {k: num(v) for k, v in c.ceilings_w.items()},
+                        "masked_points": c.masked_points} for c in result.candidates],
+        "rechecks": [{"x_m": c.x_m, "y_m": c.y_m, "search_power_scale": num(c.scale), "full_power_scale": num(sc),
+                      "difference_db": None if not (c.scale and sc and math.isfinite(c.scale) and math.isfinite(sc))
+                      else 10 * math.log10(sc / c.scale)} for c, sc in result.rechecks],
+    }
+
+
+def write_place(result, full, folder: Path, winner_text: str, paper: str = "a4") -> None:
+    """place-map.png, place.json, winner.toml, place.pdf (with the best candidates' full maps)."""
+    import json
+
+    paper_in = PAPERS_IN[paper]
+    maps.place_figure(result).savefig(folder / "place-map.png", dpi=170)
+    (folder / "place.json").write_text(json.dumps(place_doc(result), indent=1, allow_nan=False) + "\n")
+    (folder / "winner.toml").write_text(winner_text)
+    site = result.site
+    today = dt.date.today().isoformat()
+    with PdfPages(folder / "place.pdf", metadata={"Title": f"Placement search: {site.title}",
+                                                  "Creator": f"nfmap {__version__}"}) as pdf:
+        pg = _Pages(pdf, f"{site.title} - placement - nfmap {__version__} - {today}", paper_in)
+        pg.line(f"Where may {result.antenna!r} stand?", size=18, weight="bold")
+        pg.line(site.title, size=13)
+        pg.line(f"Candidates every {result.step_m:g} m inside {result.within!r}; {len(result.candidates)} ranked, "
+                f"{result.rejected} left out (the antenna's wires must lie inside the area and clear of the others).")
+        pg.line("Ranked by the power its transmissions may use, as a share of the planned power (1: the plan fits), "
+                "over every accessible area and every check; candidates with points too close to its wires come last.")
+        rows = []
+        for k, c in enumerate(result.candidates[:25], 1):
+            rows.append([str(k), f"({c.x_m:g}, {c.y_m:g})", "-" if c.height_m is None else f"{c.height_m:g}",
+                         "-" if c.heading_deg is None else f"{c.heading_deg:g}", _fmt(c.scale),
+                         ", ".join(f"{_fmt(v, '.0f', 'no limit')}" for v in c.ceilings_w.values()),
+                         str(c.masked_points)])
+        pg.table(["rank", "position m", "height", "heading", "scale", "ceiling W PEP", "masked"], rows,
+                 [5, 14, 7, 8, 7, 22, 7])
+        pg.heading("The best, re-checked with full solves")
+        for c, sc in result.rechecks:
+            d = 10 * math.log10(sc / c.scale) if c.scale and sc and math.isfinite(sc) and math.isfinite(c.scale) else 0
+            pg.line(f"({c.x_m:g}, {c.y_m:g}): search {c.scale:.3g}, full solve {sc:.3g} x the planned power "
+                    f"({d:+.2f} dB: the other antennas' re-radiation, left out of the search).")
+        pg.line("winner.toml is the site file with the best position written in; run it for the full record.")
+        pg.heading("Cautions")
+        for c in CAUTIONS:
+            pg.line(f"- {c}")
+        pg.figure_page(maps.place_figure(result, paper_in))
+        caption = maps.caption_text(full[0]) if full else ""
+        wires = None
+        for a in full:
+            wires = maps.wires_of(a.site)
+            pg.figure_page(maps.map_figure(a, a.combined.ratio, "a best candidate: combined case", a.combined.crossings,
+                                           a.combined.areas, caption, wires, paper_in))
+        pg.close()
