@@ -65,3 +65,18 @@ def test_a_search_with_no_room_is_reported():
     s = square_lot()
     with pytest.raises(site.SiteError, match="no area named"):
         place.search(s, "v", within="nowhere")
+
+
+@pytest.mark.slow
+def test_a_rotator_beam_is_placed_by_its_envelope():
+    # a beam on a rotator: the search's envelope (radius about the mast) equals the full assessment's
+    # (envelope and eight coupled headings, here with no other antenna) within 2 %
+    s = square_lot()
+    beam = dataclasses.replace(s.antennas[0], kind="beam", position_m=(0.0, 0.0),
+                               params=(("design_mhz", 28.4), ("elements", 3), ("heading_deg", "any"), ("height_m", 6.0)))
+    s = dataclasses.replace(s, antennas=(beam,))
+    r = place.search(s, "v", within="lot", step_m=1.0)
+    assert r.candidates
+    c = next(c for c in r.candidates if (c.x_m, c.y_m) == (0.0, 0.0))
+    direct = assess.assess(place.moved(s, "v", 0.0, 0.0), grow=False).transmissions[0].power_ceiling_w
+    assert c.ceilings_w["t"] == pytest.approx(direct, rel=0.02)

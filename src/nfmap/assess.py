@@ -459,39 +459,63 @@ def rotator_envelope(site: Site, pl: Plan, t, workers) -> list[LevelMaps]:
     """
     spec = site.antenna(t.antenna)
     mx, my = spec.position_m
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", antennas.ModelRuleWarning)
-        beam = build(site, spec, t.frequency_mhz, 0.0)
-    model = engine.Model((beam,), 0, t.frequency_mhz, site.ground)
+    model = beam_alone(site, t)
     xx, yy = np.meshgrid(pl.x_m, pl.y_m)
     r_plan = np.hypot(xx - mx, yy - my)
     dr = min(ENVELOPE_DR_M, pl.spacing_m / 2)
-    phi = np.radians(np.arange(0.0, 360.0, ENVELOPE_STEP_DEG))
     body = site.grid.body.heights_m()
     out = []
     for lv in pl.levels:
         rr = r_plan[lv.place] if lv.place.any() else r_plan.ravel()
         radii = np.arange(math.floor(rr.min() / dr), math.ceil(rr.max() / dr) + 1) * dr
-        z = lv.floor_m + body
-        rg, pg, zg = np.meshgrid(radii, phi, z, indexing="ij")  # (nr, nphi, nz)
-        pts = np.column_stack([(mx + rg * np.sin(pg)).ravel(), (my + rg * np.cos(pg)).ravel(), zg.ravel()])
-        nf = engine.near_fields(model, pts, t.envelope_power_w, jobs=workers)
-        shape = (len(radii), len(phi), len(z))
-        e = np.moveaxis(engine.rms_magnitude(nf.e_v_per_m).reshape(shape), 2, 0)  # (nz, nr, nphi)
-        h = np.moveaxis(engine.rms_magnitude(nf.h_a_per_m).reshape(shape), 2, 0)
-        per_r = []
-        for v in (averaging.body_reduce(e, site.grid.spatial), averaging.body_reduce(h, site.grid.spatial),
-                  averaging.spatial_peak(e), averaging.spatial_peak(h)):
-            per_r.append(np.max(v, axis=1))  # over azimuth; NaN (masked anywhere on the circle) stays NaN
-        pos = r_plan / dr - radii[0] / dr
-        k = np.clip(np.floor(pos + 1e-9).astype(int), 0, len(radii) - 1)
-        on_sample = np.abs(pos - np.round(pos)) < 1e-6  # a point on a sampled radius needs no neighbour
-        k1 = np.where(on_sample, k, np.clip(k + 1, 0, len(radii) - 1))
-        fields = [np.where(np.isnan(v[k]) | np.isnan(v[k1]), np.nan, np.fmax(v[k], v[k1])) for v in per_r]
+        per_r = envelope_by_radius(site, model, (mx, my), radii, lv.floor_m + body, t.envelope_power_w, workers)
+        fields = at_radius(per_r, radii, r_plan)
         e_b, h_b, e_p, h_p = (np.where(lv.place, f, np.nan) for f in fields)
         judged, r_pub = judge_level(site, lv, t, e_b, h_b, e_p, h_p)
         out.append(LevelMaps(lv.floor_m, t.envelope_power_w, judged, r_pub, e_b, h_b, e_p, h_p))
     return out
+
+
+def beam_alone(site: Site, t, x_m: float | None = None, y_m: float | None = None) -> engine.Model:
+    """The model of a transmission's beam at heading 0, the other antennas absent (at its mast, or moved)."""
+    spec = site.antenna(t.antenna)
+    if x_m is not None:
+        spec = replace(spec, position_m=(float(x_m), float(y_m)))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", antennas.ModelRuleWarning)
+        beam = build(site, spec, t.frequency_mhz, 0.0)
+    return engine.Model((beam,), 0, t.frequency_mhz, site.ground)
+
+
+def envelope_by_radius(site: Site, model: engine.Model, mast_m, radii: np.ndarray, z_m: np.ndarray, power_w: float,
+                       workers) -> list[np.ndarray]:
+    """Per radius about the mast: the largest body-reduced E, H and spatial peaks over a full circle.
+
+    Returns four arrays (nr,): E and H reduced by the site's body-line scheme, and their spatial peaks,
+    each the maximum over azimuth (every ``ENVELOPE_STEP_DEG``); NaN where the body line is masked at
+    any azimuth.
+    """
+    mx, my = mast_m
+    phi = np.radians(np.arange(0.0, 360.0, ENVELOPE_STEP_DEG))
+    rg, pg, zg = np.meshgrid(radii, phi, z_m, indexing="ij")  # (nr, nphi, nz)
+    pts = np.column_stack([(mx + rg * np.sin(pg)).ravel(), (my + rg * np.cos(pg)).ravel(), zg.ravel()])
+    nf = engine.near_fields(model, pts, power_w, jobs=workers)
+    shape = (len(radii), len(phi), len(z_m))
+    e = np.moveaxis(engine.rms_magnitude(nf.e_v_per_m).reshape(shape), 2, 0)  # (nz, nr, nphi)
+    h = np.moveaxis(engine.rms_magnitude(nf.h_a_per_m).reshape(shape), 2, 0)
+    return [np.max(v, axis=1)  # over azimuth; NaN (masked anywhere on the circle) stays NaN
+            for v in (averaging.body_reduce(e, site.grid.spatial), averaging.body_reduce(h, site.grid.spatial),
+                      averaging.spatial_peak(e), averaging.spatial_peak(h))]
+
+
+def at_radius(per_r: list[np.ndarray], radii: np.ndarray, r_m: np.ndarray) -> list[np.ndarray]:
+    """Values at radii ``r_m``: the larger of the two sampled radii bracketing each (a sampled one alone)."""
+    dr = float(radii[1] - radii[0]) if len(radii) > 1 else 1.0
+    pos = r_m / dr - radii[0] / dr
+    k = np.clip(np.floor(pos + 1e-9).astype(int), 0, len(radii) - 1)
+    on_sample = np.abs(pos - np.round(pos)) < 1e-6  # a point on a sampled radius needs no neighbour
+    k1 = np.where(on_sample, k, np.clip(k + 1, 0, len(radii) - 1))
+    return [np.where(np.isnan(v[k]) | np.isnan(v[k1]), np.nan, np.fmax(v[k], v[k1])) for v in per_r]
 
 
 def point_fields(site: Site, t, pts: np.ndarray):
@@ -510,16 +534,12 @@ def point_fields(site: Site, t, pts: np.ndarray):
         h_all.append(engine.rms_magnitude(nf.h_a_per_m))
         m_all.append(nf.masked)
     if len(headings) > 1:
-        spec = site.antenna(t.antenna)
-        mx, my = spec.position_m
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", antennas.ModelRuleWarning)
-            beam = build(site, spec, t.frequency_mhz, 0.0)
+        mx, my = site.antenna(t.antenna).position_m
         phi = np.radians(np.arange(0.0, 360.0, ENVELOPE_STEP_DEG))
         r = np.hypot(pts[:, 0] - mx, pts[:, 1] - my)
         circ = np.column_stack([(mx + r[:, None] * np.sin(phi)).ravel(), (my + r[:, None] * np.cos(phi)).ravel(),
                                 np.repeat(pts[:, 2], len(phi))])
-        nf = engine.near_fields(engine.Model((beam,), 0, t.frequency_mhz, site.ground), circ, t.envelope_power_w)
+        nf = engine.near_fields(beam_alone(site, t), circ, t.envelope_power_w)
         e_all.append(np.max(engine.rms_magnitude(nf.e_v_per_m).reshape(len(pts), len(phi)), axis=1))
         h_all.append(np.max(engine.rms_magnitude(nf.h_a_per_m).reshape(len(pts), len(phi)), axis=1))
         m_all.append(nf.masked.reshape(len(pts), len(phi)).any(axis=1))

@@ -154,10 +154,14 @@ def _fitting(alone, cand_idx, pl, region, others) -> np.ndarray:
 def _scales(site: Site, pl: assess.Plan, trial: Site, antenna: str, t, idx: np.ndarray, workers):
     """Per candidate: the power ceiling of transmission ``t`` [W PEP] and its masked points."""
     spec = trial.antenna(antenna)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", antennas.ModelRuleWarning)
-        alone = build(trial, spec, t.frequency_mhz)
-    model = engine.Model((alone,), 0, t.frequency_mhz, site.ground)
+    rotator = len(assess.headings_for(trial, antenna)) > 1
+    if rotator:
+        model = assess.beam_alone(trial, t, 0.0, 0.0)
+    else:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", antennas.ModelRuleWarning)
+            alone = build(trial, spec, t.frequency_mhz)
+        model = engine.Model((alone,), 0, t.frequency_mhz, site.ground)
     ny, nx = len(pl.y_m), len(pl.x_m)
     cy, cx = idx[:, 0], idx[:, 1]
     d = pl.spacing_m
@@ -169,6 +173,16 @@ def _scales(site: Site, pl: assess.Plan, trial: Site, antenna: str, t, idx: np.n
         wy, wx = lv.window
         oy0, oy1 = int(wy.start) - int(cy.max()), int(wy.stop) - 1 - int(cy.min())
         ox0, ox1 = int(wx.start) - int(cx.max()), int(wx.stop) - 1 - int(cx.min())
+        if rotator:
+            # a beam on a rotator: the envelope over every heading depends on the distance to the mast only
+            oxg, oyg = np.meshgrid(np.arange(ox0, ox1 + 1) * d, np.arange(oy0, oy1 + 1) * d)
+            r = np.hypot(oxg, oyg)
+            dr = min(assess.ENVELOPE_DR_M, d / 2)
+            radii = np.arange(0, math.ceil(r.max() / dr) + 1) * dr
+            per_r = assess.envelope_by_radius(site, model, (0.0, 0.0), radii, lv.floor_m + body,
+                                              t.envelope_power_w, workers)
+            fields.append(((oy0, ox0), tuple(assess.at_radius(per_r, radii, r))))
+            continue
         lat = engine.Lattice((ox0 * d, oy0 * d, lv.floor_m + body[0]),
                              (d, d, float(body[1] - body[0]) if len(body) > 1 else 1.0),
                              (ox1 - ox0 + 1, oy1 - oy0 + 1, len(body)))
