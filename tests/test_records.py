@@ -224,7 +224,7 @@ def assert_legible(fig):
             assert not a.overlaps(b), f"{ta!r} overlaps {tb!r}"
 
 
-@pytest.mark.parametrize("example", [pytest.param(e, marks=pytest.mark.slow) if e == "demo.toml" else e
+@pytest.mark.parametrize("example", [pytest.param(e, marks=pytest.mark.slow) if e.startswith("demo") else e
                                      for e in EXAMPLES])
 def test_every_example_map_and_section_is_legible(example, tmp_path):
     # every text box (labels, values, titles, ticks, legend, caption) apart from every other and inside the
