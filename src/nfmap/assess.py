@@ -210,8 +210,8 @@ def tier_at(site: Site, x_m: float, y_m: float) -> str:
     return min(covering, key=lambda a: STRICTNESS[a.exposure]).exposure if covering else "public"
 
 
-def plan(site: Site) -> Plan:
-    """The plan lattice from the extent of areas, lines and antennas plus the margin."""
+def plan_axes(site: Site) -> tuple[np.ndarray, np.ndarray]:
+    """The plan lattice's x and y [m]: the extent of areas, lines and antennas plus the margin, on the spacing."""
     xs, ys = [], []
     for a in site.areas:
         xs += [p[0] for p in a.polygon]
@@ -227,8 +227,12 @@ def plan(site: Site) -> Plan:
     d, m = site.grid.spacing_m, site.grid.margin_m
     x0, x1 = math.floor((min(xs) - m) / d) * d, math.ceil((max(xs) + m) / d) * d
     y0, y1 = math.floor((min(ys) - m) / d) * d, math.ceil((max(ys) + m) / d) * d
-    x = x0 + d * np.arange(int(round((x1 - x0) / d)) + 1)
-    y = y0 + d * np.arange(int(round((y1 - y0) / d)) + 1)
+    return (x0 + d * np.arange(int(round((x1 - x0) / d)) + 1), y0 + d * np.arange(int(round((y1 - y0) / d)) + 1))
+
+
+def plan(site: Site) -> Plan:
+    """The plan lattice from the extent of areas, lines and antennas plus the margin, and its levels."""
+    x, y = plan_axes(site)
     xx, yy = np.meshgrid(x, y)
     levels = []
     for floor in sorted({0.0, *(a.floor_m for a in site.areas)}):

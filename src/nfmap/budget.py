@@ -7,7 +7,6 @@ ground, on one core; H from curl E costs six E evaluations per point.
 
 from __future__ import annotations
 
-import math
 import warnings
 from dataclasses import dataclass
 
@@ -115,18 +114,6 @@ def _window_size(lv: assess.Level) -> int:
 
 
 def plan_points_estimate(site: Site) -> int:
-    """Plan lattice points from the extent alone (cheap: before building the lattice)."""
-    xs, ys = [], []
-    for a in site.areas:
-        xs += [p[0] for p in a.polygon]
-        ys += [p[1] for p in a.polygon]
-    for ln in site.lines:
-        xs += [p[0] for p in ln.points]
-        ys += [p[1] for p in ln.points]
-    for spec in site.antennas:
-        s = assess._structure(site, spec.name, assess.highest_any(site))
-        for w in s.wires:
-            xs += [w.start_m[0], w.end_m[0]]
-            ys += [w.start_m[1], w.end_m[1]]
-    d, m = site.grid.spacing_m, site.grid.margin_m
-    return math.ceil((max(xs) - min(xs) + 2 * m) / d + 2) * math.ceil((max(ys) - min(ys) + 2 * m) / d + 2)
+    """Plan lattice points from the extent alone (cheap: the axes, not the lattice)."""
+    x, y = assess.plan_axes(site)
+    return len(x) * len(y)
