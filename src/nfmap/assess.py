@@ -356,21 +356,18 @@ def assess(site: Site, jobs: int = 1, progress: Callable[[int], None] | None = N
            grow: bool = True, max_field_points: int | None = None) -> Assessment:
     """The whole assessment of a site (see the module docstring).
 
-    When the ratio on the lattice's outer edge is ``EDGE_RATIO`` or more, the exposure goes on beyond
-    the map: the margin is grown (a ring of points evaluated at each trial margin, cheap) until the
-    edge is below it, up to ``MARGIN_MAX_M`` and ``max_field_points``, and the site assessed again
-    once. The record says how far it was grown, or where the lattice ends and its edge value.
+    When the ratio on the lattice's outer edge would be ``EDGE_RATIO`` or more, the exposure goes on
+    beyond the map: before the assessment the margin is grown (only a ring of points evaluated at each
+    trial margin) until the ring reads below it, up to ``MARGIN_MAX_M`` and ``max_field_points``; the
+    site is then assessed once. The record says how far it was grown, or where the lattice ends and its
+    edge value.
     """
     with engine.Workers(jobs) as workers:
-        a = _assess_once(site, workers, progress)
-        if not grow or a.edge_ratio < EDGE_RATIO:
-            return a
-        margin = covering_margin_m(site, workers, max_field_points)
+        margin = covering_margin_m(site, workers, max_field_points) if grow else site.grid.margin_m
         if margin <= site.grid.margin_m:
-            return a
+            return _assess_once(site, workers, progress)
         grown = replace(site, grid=replace(site.grid, margin_m=margin))
-        b = _assess_once(grown, workers, progress)
-        return replace(b, margin_given_m=site.grid.margin_m)
+        return replace(_assess_once(grown, workers, progress), margin_given_m=site.grid.margin_m)
 
 
 def _assess_once(site: Site, workers: engine.Workers, progress) -> Assessment:
@@ -399,8 +396,8 @@ def covering_margin_m(site: Site, workers: engine.Workers, max_field_points: int
     """The smallest margin (tried in growing steps) whose lattice edge reads below ``EDGE_RATIO``.
 
     At each trial only the ground ring of the lattice is evaluated (every transmission, its worst
-    check against the public tier; the ratios of all transmissions added, an upper bound for any
-    group). Stops at ``MARGIN_MAX_M`` or where the lattice would exceed ``max_field_points``.
+    check against the public tier, added within each group as field ratios: at least the combined case's
+    value under either summation rule). Stops at ``MARGIN_MAX_M`` or where the lattice would exceed ``max_field_points``.
     """
     margin = site.grid.margin_m
     points_per_plan = site.grid.body.points * sum(len(headings_for(site, t.antenna)) for t in site.transmissions)
@@ -420,7 +417,8 @@ def covering_margin_m(site: Site, workers: engine.Workers, max_field_points: int
 
 
 def _ring_ratio(site: Site, workers: engine.Workers) -> float:
-    """Sum over transmissions of the worst check on the ground ring of the site's lattice."""
+    """The worst check on the ground ring of the site's lattice: per transmission, added within each group,
+    the worst group (every point against the public tier)."""
     pl = plan(site)
     xx, yy = np.meshgrid(pl.x_m, pl.y_m)
     ring = np.zeros(xx.shape, bool)
@@ -428,7 +426,7 @@ def _ring_ratio(site: Site, workers: engine.Workers) -> float:
     px, py = xx[ring], yy[ring]
     heights = site.grid.body.heights_m()
     pts = np.column_stack([np.repeat(px, len(heights)), np.repeat(py, len(heights)), np.tile(heights, len(px))])
-    total = np.zeros(len(px))
+    by_tx = {}
     for t in site.transmissions:
         worst = np.zeros(len(px))
         for heading in headings_for(site, t.antenna):
@@ -441,8 +439,10 @@ def _ring_ratio(site: Site, workers: engine.Workers) -> float:
                 ef, hf = (e_p, h_p) if c.spatial == "peak" else (e_b, h_b)
                 r, _ = ratios.exposure_ratio(ef, hf, checks.check_limits(c, "public", t.frequency_mhz))
                 worst = np.fmax(worst, np.nan_to_num(r) * t.power_factor(c, "public"))
-        total += worst
-    return float(total.max()) if total.size else 0.0
+        by_tx[t.name] = worst
+    # field ratios added: never less than either summation rule gives
+    groups = [np.sum([np.sqrt(by_tx[n]) for n in g], axis=0) ** 2 for g in group_members(site)]
+    return float(np.max(groups)) if len(px) else 0.0
 
 
 ROTATOR_HEADINGS_DEG = tuple(range(0, 360, 45))
@@ -706,7 +706,7 @@ def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
     masked = sum(int((np.isnan(m.ratio) & lv.place).sum()) for m, lv in zip(levels, pl.levels, strict=True))
     spec = site.antenna(t.antenna)
     sec = section_.compute(
-        site, t, model, _feed_m(structure), (float(pl.x_m[0]), float(pl.x_m[-1]), float(pl.y_m[0]), float(pl.y_m[-1])),
+        site, t, model, feed_point_m(structure), (float(pl.x_m[0]), float(pl.x_m[-1]), float(pl.y_m[0]), float(pl.y_m[-1])),
         pl.spacing_m, workers, None if spec.section_deg is None else spec.section_deg - site.north_deg)
     return TransmissionResult(
         t.name, t.antenna, t.frequency_mhz, t.power_w, t.average_power_w, sol.feed_impedance_ohm,
@@ -716,7 +716,8 @@ def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
     )
 
 
-def _feed_m(s: antennas.Structure) -> tuple[float, float, float]:
+def feed_point_m(s: antennas.Structure) -> tuple[float, float, float]:
+    """Where a structure is fed (a beam: its driven element's centre, on the mast) [m]."""
     w = s.wires[s.feed_wire]
     return tuple(float(w.start_m[i] + s.feed_at * (w.end_m[i] - w.start_m[i])) for i in range(3))
 
@@ -841,9 +842,7 @@ def power_ceiling_w(power_w: float, areas: tuple[AreaResult, ...]) -> float | No
 def model_distance_m(pl: Plan, ratio_public_by_level: list[np.ndarray], structure: antennas.Structure) -> float | None:
     """Farthest plan point, on any level, with the whole-body ratio >= 1 against the public tier, from
     the antenna's feed, horizontally (the figure the far-field estimate is compared with)."""
-    fw = structure.wires[structure.feed_wire]
-    fx = fw.start_m[0] + structure.feed_at * (fw.end_m[0] - fw.start_m[0])
-    fy = fw.start_m[1] + structure.feed_at * (fw.end_m[1] - fw.start_m[1])
+    fx, fy, _ = feed_point_m(structure)
     xx, yy = np.meshgrid(pl.x_m, pl.y_m)
     over = np.zeros(xx.shape, bool)
     for r in ratio_public_by_level:

@@ -20,7 +20,7 @@ from matplotlib.figure import Figure
 from matplotlib.patches import Circle, FancyArrow, Polygon, Rectangle
 
 from . import __version__
-from .assess import MAP_LEVELS, Plan
+from .assess import MAP_LEVELS, Plan, feed_point_m
 
 TIER_STYLE = {
     "public": {"edgecolor": "#00796b", "linestyle": "-", "linewidth": 1.6, "hatch": None},
@@ -102,12 +102,6 @@ def antenna_label(spec, s) -> str:
         return f"{spec.name}, {radiator.length_m:.3g} m tall" + (f" on {base:g} m" if base else "")
     z = spec.param("height_m") if spec.kind == "beam" else feed_point_m(s)[2]
     return f"{spec.name}, {z:.3g} m"
-
-
-def feed_point_m(s) -> tuple[float, float, float]:
-    """Where an antenna is fed (a beam: its driven element's centre, on the mast) [m]."""
-    w = s.wires[s.feed_wire]
-    return tuple(float(w.start_m[i] + s.feed_at * (w.end_m[i] - w.start_m[i])) for i in range(3))
 
 
 def _beam_arrow(ax, site, x: float, y: float, heading_deg: float) -> None:
@@ -524,6 +518,10 @@ def section_figure(assessment, t, paper_in: tuple[float, float] | None = None) -
     caption = (f"Point values on the section (no averaging along the body line), every check of "
                f"{site.standard} against the public tier, the worst shown; {t.frequency_mhz:g} MHz, "
                f"{t.power_w:g} W PEP. The plan maps judge each area on its own floor with its body line.")
+    from .assess import headings_for
+
+    if len(headings_for(site, t.antenna)) > 1:
+        caption += " A beam on a rotator is drawn here at heading 0 only; the plan maps take every heading."
     _settle(fig, ax, foot, caption)
     return fig
 
