@@ -435,10 +435,8 @@ def _ring_ratio(site: Site, workers: engine.Workers) -> float:
             h = engine.rms_magnitude(nf.h_a_per_m).reshape(len(px), len(heights)).T
             e_b, h_b = averaging.body_reduce(e, site.grid.spatial), averaging.body_reduce(h, site.grid.spatial)
             e_p, h_p = averaging.spatial_peak(e), averaging.spatial_peak(h)
-            for c in checks.checks_for(site.standard, t.frequency_mhz):
-                ef, hf = (e_p, h_p) if c.spatial == "peak" else (e_b, h_b)
-                r, _ = ratios.exposure_ratio(ef, hf, checks.check_limits(c, "public", t.frequency_mhz))
-                worst = np.fmax(worst, np.nan_to_num(r) * t.power_factor(c, "public"))
+            for r, _ in t.check_ratios(site.standard, "public", e_b, h_b, e_p, h_p).values():
+                worst = np.fmax(worst, np.nan_to_num(r))
         by_tx[t.name] = worst
     # field ratios added: never less than either summation rule gives
     groups = [np.sum([np.sqrt(by_tx[n]) for n in g], axis=0) ** 2 for g in group_members(site)]
@@ -604,18 +602,13 @@ def judge_level(site: Site, lv: Level, t, e, h, e_pk, h_pk) -> tuple[Judged, np.
     against the public tier where people stand.
     """
     occ = lv.tier == "occupational"
+    per = {tier: t.check_ratios(site.standard, tier, e, h, e_pk, h_pk) for tier in ("public", "occupational")}
     by_check, gov_by = {}, {}
-    r_pub_whole = None
-    for c in checks.checks_for(site.standard, t.frequency_mhz):
-        ef, hf = (e_pk, h_pk) if c.spatial == "peak" else (e, h)
-        per = {}
-        for tier in ("public", "occupational"):
-            r, g = ratios.exposure_ratio(ef, hf, checks.check_limits(c, tier, t.frequency_mhz))
-            per[tier] = (r * t.power_factor(c, tier), g)
-        by_check[c.id] = np.where(lv.place, np.where(occ, per["occupational"][0], per["public"][0]), 0.0)
-        gov_by[c.id] = np.where(occ, per["occupational"][1], per["public"][1])
-        if c.id == "whole-body":
-            r_pub_whole = np.where(lv.place, per["public"][0], 0.0)
+    for cid, (r_pub, g_pub) in per["public"].items():
+        r_occ, g_occ = per["occupational"][cid]
+        by_check[cid] = np.where(lv.place, np.where(occ, r_occ, r_pub), 0.0)
+        gov_by[cid] = np.where(occ, g_occ, g_pub)
+    r_pub_whole = np.where(lv.place, per["public"]["whole-body"][0], 0.0)
     return judge(by_check, gov_by), r_pub_whole
 
 

@@ -517,7 +517,6 @@ def probe_cmd(site_file, at, exposure, only, as_json):
     import numpy as np
 
     from . import assess
-    from .exposure import checks, ratios
 
     site = _load(site_file)
     pts = []
@@ -545,10 +544,8 @@ def probe_cmd(site_file, at, exposure, only, as_json):
                     "envelope_power_w": t.envelope_power_w})
         for k, (x, y, zz) in enumerate(pts):
             masked = bool(masked_pts[k])
-            by_check = {}
-            for c in checks.checks_for(site.standard, t.frequency_mhz):
-                r, _ = ratios.exposure_ratio(e[k : k + 1], h[k : k + 1], checks.check_limits(c, tiers[k], t.frequency_mhz))
-                by_check[c.id] = None if masked else float(r[0]) * t.power_factor(c, tiers[k])
+            by_check = {cid: None if masked else float(r[0])
+                        for cid, (r, _) in t.check_ratios(site.standard, tiers[k], e[k : k + 1], h[k : k + 1]).items()}
             worst = None if masked else max(by_check, key=by_check.get)
             rows.append({"x_m": x, "y_m": y, "z_m": zz, "transmission": t.name,
                          "e_rms_v_per_m": None if masked else float(e[k]) * avg,

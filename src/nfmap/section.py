@@ -17,7 +17,6 @@ import numpy as np
 import shapely
 
 from . import engine
-from .exposure import checks, ratios
 from .site import Site, Transmission
 
 SECTION_STEP_DEG = 15
@@ -117,9 +116,8 @@ def compute(site: Site, t: Transmission, model: engine.Model, feed_m: tuple[floa
     e = engine.rms_magnitude(nf.e_v_per_m)
     h = engine.rms_magnitude(nf.h_a_per_m)
     worst = np.zeros(len(pts))
-    for c in checks.checks_for(site.standard, t.frequency_mhz):
-        r, _ = ratios.exposure_ratio(e, h, checks.check_limits(c, "public", t.frequency_mhz))
-        worst = np.fmax(worst, r * t.power_factor(c, "public"))
+    for r, _ in t.check_ratios(site.standard, "public", e, h).values():  # point values serve every check
+        worst = np.fmax(worst, r)
     worst = np.where(nf.masked, np.nan, worst).reshape(zz.shape)
     return Section(origin, bearing, chosen, s, z, worst, floors, tuple(wires), body.from_m, body.to_m)
 

@@ -22,7 +22,7 @@ import antennas
 from antennas import GeometryError, Structure
 
 from . import engine
-from .exposure import averaging, checks, limits
+from .exposure import averaging, checks, limits, ratios
 
 TIERS = ("public", "occupational", "none")
 # Default body line: 0.2 to 2.0 m in 0.2 m steps. The top of 2 m follows the practice of averaging
@@ -127,6 +127,23 @@ class Transmission:
     def power_factor(self, check, exposure: str) -> float:
         """Power of a check (``exposure.checks.Check``) relative to :attr:`envelope_power_w`."""
         return checks.power_factor(check, exposure, self.duty_factor, self.transmit_fraction, self.fraction_6min)
+
+    def check_ratios(self, standard: str, exposure: str, e_v_per_m, h_a_per_m, e_peak_v_per_m=None,
+                     h_peak_a_per_m=None) -> dict:
+        """Every check of ``standard`` on fields at :attr:`envelope_power_w`, against one tier.
+
+        ``e_v_per_m``/``h_a_per_m`` are the body-reduced fields (or point values), the ``*_peak_*`` their
+        spatial peaks (default: the same values). Returns ``{check id: (ratio, governing quantity index)}``,
+        each ratio scaled to the check's own time base.
+        """
+        e_pk = e_v_per_m if e_peak_v_per_m is None else e_peak_v_per_m
+        h_pk = h_a_per_m if h_peak_a_per_m is None else h_peak_a_per_m
+        out = {}
+        for c in checks.checks_for(standard, self.frequency_mhz):
+            e, h = (e_pk, h_pk) if c.spatial == "peak" else (e_v_per_m, h_a_per_m)
+            r, g = ratios.exposure_ratio(e, h, checks.check_limits(c, exposure, self.frequency_mhz))
+            out[c.id] = (r * self.power_factor(c, exposure), g)
+        return out
 
 
 @dataclass(frozen=True)
