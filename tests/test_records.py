@@ -213,9 +213,12 @@ def _text_boxes(fig):
     return out, fig.bbox
 
 
-def assert_legible(fig):
-    """No two texts of a figure overlap and every text lies inside the figure."""
+def assert_legible(fig, plan_share: float = 0.6):
+    """No two texts of a figure overlap, every text lies inside the figure, and the plan (the first axes) spans
+    at least ``plan_share`` of the figure's width or height: the layout did not squeeze it."""
     boxes, page = _text_boxes(fig)
+    ax = fig.axes[0].get_position()
+    assert max(ax.width, ax.height) >= plan_share, f"the plan was squeezed to {ax.bounds}"
     for text, b in boxes:
         assert b.x0 >= page.x0 - 0.5 and b.y0 >= page.y0 - 0.5 and b.x1 <= page.x1 + 0.5 and b.y1 <= page.y1 + 0.5, \
             f"{text!r} leaves the figure"
@@ -240,7 +243,7 @@ def test_every_example_map_and_section_is_legible(example, tmp_path):
     for t in a.transmissions:
         assert_legible(maps.map_figure(a, t.ratio, "t", t.crossings, t.areas, caption, wires))
         assert_legible(maps.map_figure(a, t.ratio, "t", t.crossings, t.areas, caption, wires, report.PAPERS_IN["a4"]))
-        assert_legible(maps.section_figure(a, t))
+        assert_legible(maps.section_figure(a, t), plan_share=0.5)
 
 
 def test_report_pages_are_all_one_paper_size(tmp_path):

@@ -344,7 +344,7 @@ def draw_inset(ax, pl: Plan, ratio: np.ndarray, site, structures):
 
 
 FOOT_IN = 1.35  # legend and caption band under the plan [in]
-COLOURBAR_IN = 1.0  # room kept on the right for the colour bar glued to the plan [in]
+COLOURBAR_IN = 1.3  # room kept on the right for the colour bar glued to the plan [in]
 
 
 def _plan_figure(pl, paper_in: tuple[float, float] | None = None):
@@ -383,13 +383,33 @@ def _keep_right_margin(fig) -> None:
 
 
 def _caption(foot, text: str, width_in: float = 7.5):
-    """The caption at the bottom of the band, wrapped to the figure's width."""
-    return foot.text(0.0, 0.0, _wrap(text, width_in), fontsize=6, color="#333333", ha="left", va="bottom",
-                     transform=foot.transAxes)
+    """The caption at the bottom of the band, from the figure's left edge across its width (out of the layout,
+    like the legend: it may be wider than the plan's column)."""
+    from matplotlib.transforms import blended_transform_factory
+
+    fig = foot.get_figure()
+    cap = foot.text(0.15 / width_in, 0.0, _wrap(text, width_in), fontsize=6, color="#333333", ha="left",
+                    va="bottom", transform=blended_transform_factory(fig.transFigure, foot.transAxes))
+    cap.set_in_layout(False)
+    return cap
 
 
 def _wrap(text: str, width_in: float) -> str:
-    return "\n".join(textwrap.wrap(text, int(width_in / 0.047)))
+    """Wrapped to the figure's width less 0.3 in (6 pt text: about 0.047 in a character)."""
+    return "\n".join(textwrap.wrap(text, int((width_in - 0.3) / 0.047)))
+
+
+def _foot_legend(foot, handles):
+    """The legend at the top of the foot band, centred on the whole figure (it may be wider than the plan's
+    column) and kept out of the layout, which would otherwise shrink the plan to make room for it."""
+    from matplotlib.transforms import blended_transform_factory
+
+    fig = foot.get_figure()
+    leg = foot.legend(handles=handles, loc="upper center", fontsize=6.5, frameon=False, ncols=3,
+                      bbox_to_anchor=(0.5, 1.0), bbox_transform=blended_transform_factory(fig.transFigure,
+                                                                                          foot.transAxes))
+    leg.set_in_layout(False)
+    return leg
 
 
 def add_legend(foot, fields: bool = True):
@@ -414,7 +434,7 @@ def add_legend(foot, fields: bool = True):
             Line2D([], [], color="#ff6f00", linewidth=4, label="line crossed by limit region (numbered)"),
             Line2D([], [], color="#ff6f00", linewidth=4, linestyle=(0, (1.5, 1)), label="line crossed by masked zone"),
         ]
-    return foot.legend(handles=handles, loc="upper center", fontsize=6.5, frameon=False, ncols=3)
+    return _foot_legend(foot, handles)
 
 
 def frame(ax, site, pl) -> None:
@@ -514,7 +534,7 @@ def section_figure(assessment, t, paper_in: tuple[float, float] | None = None) -
                Line2D([], [], color="black", linewidth=2.0, label="limit (ratio 1)"),
                Line2D([], [], color="#666666", linestyle="--", label="half the limit"),
                Line2D([], [], color=WIRE_COLOUR, linewidth=1.6, label="antenna wire (projected)")]
-    foot.legend(handles=handles, loc="upper center", fontsize=6.5, frameon=False, ncols=3)
+    _foot_legend(foot, handles)
     caption = (f"Point values on the section (no averaging along the body line), every check of "
                f"{site.standard} against the public tier, the worst shown; {t.frequency_mhz:g} MHz, "
                f"{t.power_w:g} W PEP. The plan maps judge each area on its own floor with its body line.")
@@ -639,7 +659,7 @@ def survey_figure(sv, paper_in: tuple[float, float] | None = None) -> Figure:
     fig.suptitle(f"{site.title}\nreadings against the model (measured - model, dB)", fontsize=10)
     handles = [Line2D([], [], marker=SURVEY_MARKERS[v], color="none", markerfacecolor=SURVEY_COLOURS[v],
                       markeredgecolor="black", markersize=7, label=v) for v in SURVEY_COLOURS]
-    foot.legend(handles=handles, loc="upper center", fontsize=6.5, frameon=False, ncols=3)
+    _foot_legend(foot, handles)
     _settle(fig, ax, foot, "E for electric probes, H for loops; the model at each reading's carrier power less the "
                            f"feedline loss; nfmap {__version__}")
     return fig
