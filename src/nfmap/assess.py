@@ -21,7 +21,7 @@ import shapely
 
 import antennas
 
-from . import engine
+from . import adaptive, engine
 from . import section as section_
 from .exposure import averaging, checks, farfield, ratios
 from .site import STRICTNESS, Site, build
@@ -353,8 +353,12 @@ MARGIN_MAX_M = 100.0  # ... but not beyond this margin
 
 
 def assess(site: Site, jobs: int = 1, progress: Callable[[int], None] | None = None,
-           grow: bool = True, max_field_points: int | None = None) -> Assessment:
+           grow: bool = True, max_field_points: int | None = None, exhaustive: bool = False) -> Assessment:
     """The whole assessment of a site (see the module docstring).
+
+    Each level's lattice and each section is evaluated adaptively (:mod:`nfmap.adaptive`: NEC points only
+    where the answer changes, the rest interpolated within a stated tolerance; the ring of the margin
+    search at the coarse stride); ``exhaustive`` evaluates every point, as a check.
 
     When the ratio on the lattice's outer edge would be ``EDGE_RATIO`` or more, the exposure goes on
     beyond the map: before the assessment the margin is grown (only a ring of points evaluated at each
@@ -363,25 +367,31 @@ def assess(site: Site, jobs: int = 1, progress: Callable[[int], None] | None = N
     edge value.
     """
     with engine.Workers(jobs) as workers:
-        margin = covering_margin_m(site, workers, max_field_points) if grow else site.grid.margin_m
+        margin = (covering_margin_m(site, workers, max_field_points, exhaustive) if grow
+                  else site.grid.margin_m)
         if margin <= site.grid.margin_m:
-            return _assess_once(site, workers, progress)
+            return _assess_once(site, workers, progress, exhaustive)
         grown = replace(site, grid=replace(site.grid, margin_m=margin))
-        return replace(_assess_once(grown, workers, progress), margin_given_m=site.grid.margin_m)
+        return replace(_assess_once(grown, workers, progress, exhaustive), margin_given_m=site.grid.margin_m)
 
 
-def _assess_once(site: Site, workers: engine.Workers, progress) -> Assessment:
+def _assess_once(site: Site, workers: engine.Workers, progress, exhaustive: bool = False) -> Assessment:
     pl = plan(site)
     notes: list[str] = list(site.warnings)
     lats = _lattices(site, pl)
     results = []
-    points = 0
+    points = [0]
     for t in site.transmissions:
-        results.append(_one(site, pl, lats, t, workers, progress, notes))
-        points += sum(lat.size for lat in lats) * len(headings_for(site, t.antenna))
+        results.append(_one(site, pl, lats, t, workers, progress, notes, exhaustive, points))
+    if not exhaustive:
+        full = sum(lat.size for lat in lats) * sum(len(headings_for(site, t.antenna)) for t in site.transmissions)
+        notes.append(f"Adaptive lattice: {points[0]} of {full} lattice points evaluated with NEC "
+                     f"({100 * points[0] / full:.0f} %); the rest interpolated from their cell's corners where that "
+                     f"reproduces the evaluated ratio within {100 * adaptive.TOLERANCE:g} % + {adaptive.FLOOR:g} (--exhaustive "
+                     "evaluates every point)")
     comb = combined(site, pl, results)
     edge = max([edge_ratio(r.ratio) for r in results] + [edge_ratio(comb.ratio)])
-    return Assessment(site, pl, tuple(results), comb, points, engine.default_h_method(site.ground), tuple(notes),
+    return Assessment(site, pl, tuple(results), comb, points[0], engine.default_h_method(site.ground), tuple(notes),
                       edge)
 
 
@@ -392,18 +402,20 @@ def edge_ratio(ratio: np.ndarray) -> float:
     return float(ring.max()) if ring.size else 0.0
 
 
-def covering_margin_m(site: Site, workers: engine.Workers, max_field_points: int | None = None) -> float:
+def covering_margin_m(site: Site, workers: engine.Workers, max_field_points: int | None = None,
+                      exhaustive: bool = True) -> float:
     """The smallest margin (tried in growing steps) whose lattice edge reads below ``EDGE_RATIO``.
 
     At each trial only the ground ring of the lattice is evaluated (every transmission, its worst
     check against the public tier, added within each group as field ratios: at least the combined case's
-    value under either summation rule). Stops at ``MARGIN_MAX_M`` or where the lattice would exceed ``max_field_points``.
+    value under either summation rule); not ``exhaustive``, every coarse point of the ring (the adaptive
+    lattice's coarse stride). Stops at ``MARGIN_MAX_M`` or where the lattice would exceed ``max_field_points``.
     """
     margin = site.grid.margin_m
     points_per_plan = site.grid.body.points * sum(len(headings_for(site, t.antenna)) for t in site.transmissions)
     while margin < MARGIN_MAX_M:
         trial = replace(site, grid=replace(site.grid, margin_m=margin))
-        r = _ring_ratio(trial, workers)
+        r = _ring_ratio(trial, workers, 1 if exhaustive else adaptive.stride_for(site.grid.spacing_m))
         if r < EDGE_RATIO:
             return margin
         step = max(2.0, (margin + 5.0) * (math.sqrt(r / EDGE_RATIO) - 1.0))
@@ -416,16 +428,18 @@ def covering_margin_m(site: Site, workers: engine.Workers, max_field_points: int
     return margin
 
 
-def _ring_ratio(site: Site, workers: engine.Workers) -> float:
-    """The worst check on the ground ring of the site's lattice: per transmission, added within each group,
-    the worst group (every point against the public tier)."""
+def _ring_ratio(site: Site, workers: engine.Workers, stride: int = 1) -> float:
+    """The worst check on the ground ring of the site's lattice (every ``stride``-th point and the corners):
+    per transmission, added within each group, the worst group (every point against the public tier)."""
     pl = plan(site)
     xx, yy = np.meshgrid(pl.x_m, pl.y_m)
     ring = np.zeros(xx.shape, bool)
-    ring[0], ring[-1], ring[:, 0], ring[:, -1] = True, True, True, True
+    ring[0, ::stride], ring[-1, ::stride], ring[::stride, 0], ring[::stride, -1] = True, True, True, True
+    ring[0, -1], ring[-1, 0], ring[-1, -1] = True, True, True
     px, py = xx[ring], yy[ring]
     heights = site.grid.body.heights_m()
-    pts = np.column_stack([np.repeat(px, len(heights)), np.repeat(py, len(heights)), np.tile(heights, len(px))])
+    dz = float(heights[1] - heights[0]) if len(heights) > 1 else 1.0
+    pts = engine.Columns(np.column_stack([px, py]), float(heights[0]), dz, len(heights))  # one NEC card a column
     by_tx = {}
     for t in site.transmissions:
         worst = np.zeros(len(px))
@@ -567,30 +581,104 @@ def headings_for(site: Site, antenna: str) -> tuple[float | None, ...]:
     return ROTATOR_HEADINGS_DEG if spec.kind == "beam" and spec.param("heading_deg") == "any" else (None,)
 
 
-def _level_maps(site, pl, lats, model, t, workers, progress):
-    """Per level: fields on its lattice at the envelope power, body reduction, every check's ratio
-    against each point's tier; and the solution."""
+def _level_maps(site, pl, lats, model, t, workers, progress, exhaustive=True):
+    """Per level: fields on its lattice at the envelope power (every point, or adaptively), body reduction,
+    every check's ratio against each point's tier; the solution and the NEC points evaluated."""
     out = []
     sol = None
+    points = 0
     for lv, lat in zip(pl.levels, lats, strict=True):
-        nf = engine.near_fields(model, lat, t.envelope_power_w, jobs=workers, progress=progress)
-        sol = nf.solution
-        nx, ny, nz = lat.shape
-        e_z = engine.rms_magnitude(nf.e_v_per_m).reshape(nz, ny, nx)
-        h_z = engine.rms_magnitude(nf.h_a_per_m).reshape(nz, ny, nx)
+        if exhaustive:
+            nf = engine.near_fields(model, lat, t.envelope_power_w, jobs=workers, progress=progress)
+            sol = nf.solution
+            nx, ny, nz = lat.shape
+            e_z = engine.rms_magnitude(nf.e_v_per_m).reshape(nz, ny, nx)
+            h_z = engine.rms_magnitude(nf.h_a_per_m).reshape(nz, ny, nx)
+            reduced = (
+                averaging.body_reduce(e_z, site.grid.spatial),
+                averaging.body_reduce(h_z, site.grid.spatial),
+                averaging.spatial_peak(e_z),
+                averaging.spatial_peak(h_z),
+            )
+            points += lat.size
+        else:
+            reduced, sol_, n = _adaptive_level(site, pl, lv, model, t, workers, progress)
+            sol = sol_ or sol
+            points += n
         full = [np.full((len(pl.y_m), len(pl.x_m)), np.nan) for _ in range(4)]
-        reduced = (
-            averaging.body_reduce(e_z, site.grid.spatial),
-            averaging.body_reduce(h_z, site.grid.spatial),
-            averaging.spatial_peak(e_z),
-            averaging.spatial_peak(h_z),
-        )
         for dst, src in zip(full, reduced, strict=True):
             dst[lv.window] = src
         e, h, e_pk, h_pk = full
         judged, r_pub = judge_level(site, lv, t, e, h, e_pk, h_pk)
         out.append(LevelMaps(lv.floor_m, t.envelope_power_w, judged, r_pub, e, h, e_pk, h_pk))
-    return out, sol
+    return out, sol or engine.solve(model), points
+
+
+FIELDS = ("e", "h", "e_pk", "h_pk")
+
+
+def _adaptive_level(site: Site, pl: Plan, lv: Level, model: engine.Model, t, workers, progress):
+    """One level's body-reduced fields on its window of the plan, NEC points only where the answer
+    changes (:mod:`nfmap.adaptive`). Returns the four maps, a solution (or None) and the NEC points."""
+    sy, sx = lv.window
+    xs, ys = pl.x_m[sx], pl.y_m[sy]
+    heights = lv.floor_m + site.grid.body.heights_m()
+    dz = float(heights[1] - heights[0]) if len(heights) > 1 else 1.0
+    tier = lv.tier[lv.window]
+    occupational = tier == "occupational"
+    sol = []
+
+    def evaluate(iy: np.ndarray, ix: np.ndarray) -> dict[str, np.ndarray]:
+        cols = engine.Columns(np.column_stack([xs[ix], ys[iy]]), float(heights[0]), dz, len(heights), pl.spacing_m)
+        nf = engine.near_fields(model, cols, t.envelope_power_w, jobs=workers, progress=progress)
+        sol.append(nf.solution)
+        e = engine.rms_magnitude(nf.e_v_per_m).reshape(len(iy), len(heights)).T
+        h = engine.rms_magnitude(nf.h_a_per_m).reshape(len(iy), len(heights)).T
+        return dict(zip(FIELDS, (averaging.body_reduce(e, site.grid.spatial), averaging.body_reduce(h, site.grid.spatial),
+                                 averaging.spatial_peak(e), averaging.spatial_peak(h)), strict=True))
+
+    def ratio(v: dict[str, np.ndarray], iy: np.ndarray, ix: np.ndarray) -> np.ndarray:
+        worst = np.zeros(len(iy))
+        occ = occupational[iy, ix]
+        per = {tr: t.check_ratios(site.standard, tr, *(v[k] for k in FIELDS)) for tr in ("public", "occupational")}
+        for cid, (r_pub, _) in per["public"].items():
+            r = np.where(occ, per["occupational"][cid][0], r_pub)
+            worst = np.where(np.isnan(r), np.nan, np.fmax(worst, r))
+        return worst
+
+    stride = adaptive.stride_for(pl.spacing_m)
+    xx, yy = np.meshgrid(xs, ys)
+    column = np.column_stack([np.repeat(xx.ravel(), len(heights)), np.repeat(yy.ravel(), len(heights)),
+                              np.tile(heights, xx.size)])
+    # the fed antenna's neighbourhood and the passive ones' (two spacings) are evaluated in full
+    fed = engine.Model((model.structures[model.active],), 0, model.frequency_mhz, model.ground)
+    near = (engine.mask_points(fed, column, max(adaptive.WIRE_REACH_M, 2 * pl.spacing_m))
+            | engine.mask_points(model, column, 2 * pl.spacing_m)).reshape(xx.size, len(heights)).any(axis=1)
+    # fields fall off roughly as the inverse square of the distance from the feed: interpolate about that
+    feed = np.array(feed_point_m(model.structures[model.active]))
+    r = np.sqrt((xx - feed[0]) ** 2 + (yy - feed[1]) ** 2 + (heights.mean() - feed[2]) ** 2)
+    trend = -2.0 * np.log(np.maximum(r, pl.spacing_m))
+    got = adaptive.refine(xx.shape, evaluate, ratio, adaptive.LEVELS, stride, near.reshape(xx.shape),
+                          _edges(site, lv, xs, ys), trend)
+    return tuple(got.values[k] for k in FIELDS), (sol[0] if sol else None), got.plan_points * len(heights)
+
+
+def _edges(site: Site, lv: Level, xs: np.ndarray, ys: np.ndarray) -> np.ndarray:
+    """Plan points of a level's window on an area or floor edge (the governing area changes next to
+    them) or within a spacing of a line."""
+    index = lv.area_index[lv.window]
+    edge = np.zeros(index.shape, bool)
+    dx = index[:, 1:] != index[:, :-1]
+    dy = index[1:, :] != index[:-1, :]
+    edge[:, 1:] |= dx
+    edge[:, :-1] |= dx
+    edge[1:, :] |= dy
+    edge[:-1, :] |= dy
+    xx, yy = np.meshgrid(xs, ys)
+    d = float(xs[1] - xs[0]) if len(xs) > 1 else 1.0
+    for ln in site.lines:
+        edge |= shapely.distance(shapely.LineString(ln.points), shapely.points(xx, yy)) <= d
+    return edge
 
 
 def judge_level(site: Site, lv: Level, t, e, h, e_pk, h_pk) -> tuple[Judged, np.ndarray]:
@@ -648,7 +736,7 @@ def _merge_headings(a: list[LevelMaps], b: list[LevelMaps]) -> list[LevelMaps]:
     return out
 
 
-def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
+def _one(site, pl, lats, t, workers, progress, notes, exhaustive=True, points=None) -> TransmissionResult:
     """One transmission: solve, fields on every level, body reduction, ratios and figures.
 
     A beam on a rotator is assessed at every heading of ``ROTATOR_HEADINGS_DEG``; each plan
@@ -659,7 +747,9 @@ def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
     levels = None
     for heading in headings:
         model = model_for(site, t.name, tx_notes, heading_deg=heading)
-        maps_, sol = _level_maps(site, pl, lats, model, t, workers, progress)
+        maps_, sol, n = _level_maps(site, pl, lats, model, t, workers, progress, exhaustive)
+        if points is not None:
+            points[0] += n
         levels = maps_ if levels is None else _merge_headings(levels, maps_)
         if heading in (None, 0):
             first_sol, first_model = sol, model
@@ -700,7 +790,7 @@ def _one(site, pl, lats, t, workers, progress, notes) -> TransmissionResult:
     spec = site.antenna(t.antenna)
     sec = section_.compute(
         site, t, model, feed_point_m(structure), (float(pl.x_m[0]), float(pl.x_m[-1]), float(pl.y_m[0]), float(pl.y_m[-1])),
-        pl.spacing_m, workers, None if spec.section_deg is None else spec.section_deg - site.north_deg)
+        pl.spacing_m, workers, None if spec.section_deg is None else spec.section_deg - site.north_deg, adaptive_=not exhaustive)
     return TransmissionResult(
         t.name, t.antenna, t.frequency_mhz, t.power_w, t.average_power_w, sol.feed_impedance_ohm,
         ratio, levels[0].ratio_public, tuple(levels), areas, crossings,

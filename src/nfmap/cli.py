@@ -296,14 +296,17 @@ def _on_sigterm(signum, frame):
 @click.option("--large", is_flag=True, help="run beyond the size budget")
 @click.option("--paper", type=click.Choice(["a4", "letter"]), default="a4", show_default=True, help="report page size")
 @click.option("--quiet", is_flag=True, help="no progress")
-def run_cmd(site_file, out_dir, jobs, force, large, paper, quiet):
+@click.option("--exhaustive", is_flag=True,
+              help="evaluate every lattice point (slower; the default evaluates only where the answer changes)")
+def run_cmd(site_file, out_dir, jobs, force, large, paper, quiet, exhaustive):
     """The whole assessment: fields, ratios, area verdicts, maps, sections, report, data."""
     site = _load(site_file)
     out = Path(out_dir) if out_dir else Path("nfmap-out") / Path(site_file).stem
-    return _run_site(site, out, _default_jobs(jobs), force, quiet, large, paper)
+    return _run_site(site, out, _default_jobs(jobs), force, quiet, large, paper, exhaustive)
 
 
-def _run_site(site, out: Path, jobs: int, force: bool, quiet: bool, large: bool = False, paper: str = "a4") -> int:
+def _run_site(site, out: Path, jobs: int, force: bool, quiet: bool, large: bool = False, paper: str = "a4",
+              exhaustive: bool = False) -> int:
     import signal
 
     from . import assess, budget, outfolder
@@ -314,9 +317,10 @@ def _run_site(site, out: Path, jobs: int, force: bool, quiet: bool, large: bool 
         with outfolder.reserved(out, force, int(est.output_bytes)) as res:
             for n in res.notes:
                 click.echo(f"nfmap: {n}", err=True)
-            with _progress(est.field_points, jobs, quiet) as bar:
+            with _progress(est.field_points, jobs, quiet, exhaustive) as bar:
                 cap = None if large else budget.FIELD_POINTS_MAX
-                a = _engine_errors(lambda: assess.assess(site, jobs=jobs, progress=bar.update, max_field_points=cap))
+                a = _engine_errors(lambda: assess.assess(site, jobs=jobs, progress=bar.update, max_field_points=cap,
+                                                         exhaustive=exhaustive))
             res.commit(lambda folder: _write_all(a, folder, paper),
                        {"site_file": Path(site.path).name, "site_sha256": site.sha256})
     except outfolder.OutputError as err:
@@ -367,12 +371,14 @@ class _Lines:
                        f"about {left:.0f} s left", err=True)
 
 
-def _progress(total: int, jobs: int, quiet: bool):
+def _progress(total: int, jobs: int, quiet: bool, exhaustive: bool = True):
     if quiet:
         return _Null()
     if sys.stderr.isatty():
-        return click.progressbar(length=total, label="near fields", file=sys.stderr)
-    click.echo(f"computing near fields: {total:,} points, {jobs} jobs", err=True)
+        label = "near fields" if exhaustive else "near fields (adaptive: ends early)"
+        return click.progressbar(length=total, label=label, file=sys.stderr)
+    up_to = "" if exhaustive else "up to "
+    click.echo(f"computing near fields: {up_to}{total:,} points, {jobs} jobs", err=True)
     return _Lines(total)
 
 
@@ -766,7 +772,9 @@ def deck_cmd(site_file, name):
 @click.option("--force", is_flag=True, help="replace a demo folder that an earlier demo wrote")
 @click.option("--paper", type=click.Choice(["a4", "letter"]), default="a4", show_default=True, help="report page size")
 @click.option("--quiet", is_flag=True)
-def demo_cmd(out_dir, jobs, force, paper, quiet):
+@click.option("--exhaustive", is_flag=True,
+              help="evaluate every lattice point (slower; the default evaluates only where the answer changes)")
+def demo_cmd(out_dir, jobs, force, paper, quiet, exhaustive):
     """Write the bundled example site into the output folder and run it."""
     from importlib import resources
 
@@ -791,4 +799,4 @@ def demo_cmd(out_dir, jobs, force, paper, quiet):
     site_path.write_text(text)
     click.echo(f"example site written to {site_path}")
     site = _load(str(site_path))
-    return _run_site(site, out / "results", _default_jobs(jobs), True, quiet, paper=paper)
+    return _run_site(site, out / "results", _default_jobs(jobs), True, quiet, paper=paper, exhaustive=exhaustive)

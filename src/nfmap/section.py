@@ -16,7 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 import shapely
 
-from . import engine
+from . import adaptive, engine
 from .site import Site, Transmission
 
 SECTION_STEP_DEG = 15
@@ -78,10 +78,11 @@ def bearing_for(site: Site, origin: tuple[float, float], extent: tuple[float, fl
 
 def compute(site: Site, t: Transmission, model: engine.Model, feed_m: tuple[float, float, float],
             extent: tuple[float, float, float, float], spacing_m: float, workers=1,
-            bearing_deg: float | None = None) -> Section:
+            bearing_deg: float | None = None, adaptive_: bool = False) -> Section:
     """The section of one transmission (see the module docstring).
 
     ``bearing_deg`` is a bearing in the site's grid (0 = +y); None picks one with :func:`bearing_for`.
+    ``adaptive_``: NEC points only where the answer changes (:mod:`nfmap.adaptive`), else every point.
     """
     origin = (feed_m[0], feed_m[1])
     chosen = bearing_deg is not None
@@ -110,16 +111,47 @@ def compute(site: Site, t: Transmission, model: engine.Model, feed_m: tuple[floa
     top = max([f.floor_m + body.to_m for f in floors] + [max(z for w in wires for _, z in w)] + [body.to_m]) + 1.5
     dz = min(DZ_MAX_M, spacing_m)
     z = np.arange(1, math.ceil(top / dz) + 1) * dz
-    ss, zz = np.meshgrid(s, z)
-    pts = np.column_stack([origin[0] + ss.ravel() * ux, origin[1] + ss.ravel() * uy, zz.ravel()])
-    nf = engine.near_fields(model, pts, t.envelope_power_w, jobs=workers)
-    e = engine.rms_magnitude(nf.e_v_per_m)
-    h = engine.rms_magnitude(nf.h_a_per_m)
-    worst = np.zeros(len(pts))
-    for r, _ in t.check_ratios(site.standard, "public", e, h).values():  # point values serve every check
-        worst = np.fmax(worst, r)
-    worst = np.where(nf.masked, np.nan, worst).reshape(zz.shape)
+    if adaptive_:
+        worst = _adaptive_ratio(site, t, model, feed_m, origin, (ux, uy), s, z, spacing_m, workers)
+    else:
+        # one NEC card per vertical column of the section
+        cols = engine.Columns(np.column_stack([origin[0] + s * ux, origin[1] + s * uy]), float(z[0]), dz, len(z))
+        nf = engine.near_fields(model, cols, t.envelope_power_w, jobs=workers)
+        e = engine.rms_magnitude(nf.e_v_per_m)
+        h = engine.rms_magnitude(nf.h_a_per_m)
+        worst = np.where(nf.masked, np.nan, _worst(site, t, e, h)).reshape(len(s), len(z)).T  # (z, s)
     return Section(origin, bearing, chosen, s, z, worst, floors, tuple(wires), body.from_m, body.to_m)
+
+
+def _worst(site: Site, t: Transmission, e: np.ndarray, h: np.ndarray) -> np.ndarray:
+    """The worst check against the public tier (point values serve every check); NaN stays NaN."""
+    worst = np.zeros(np.shape(e))
+    for r, _ in t.check_ratios(site.standard, "public", e, h).values():
+        worst = np.where(np.isnan(r), np.nan, np.fmax(worst, r))
+    return worst
+
+
+def _adaptive_ratio(site, t, model, feed_m, origin, u, s, z, spacing_m, workers) -> np.ndarray:
+    """The section's ratio (z, s) with NEC points only where the answer changes."""
+    def where(iz, i_s):
+        return np.column_stack([origin[0] + s[i_s] * u[0], origin[1] + s[i_s] * u[1], z[iz]])
+
+    def evaluate(iz, i_s):
+        nf = engine.near_fields(model, where(iz, i_s), t.envelope_power_w, jobs=workers)
+        return {"e": engine.rms_magnitude(nf.e_v_per_m), "h": engine.rms_magnitude(nf.h_a_per_m)}
+
+    def ratio(v, iz, i_s):
+        return _worst(site, t, v["e"], v["h"])
+
+    stride = adaptive.stride_for(spacing_m)
+    iz, i_s = np.indices((len(z), len(s)))
+    pts = where(iz.ravel(), i_s.ravel())
+    fed = engine.Model((model.structures[model.active],), 0, model.frequency_mhz, model.ground)
+    near = (engine.mask_points(fed, pts, max(adaptive.WIRE_REACH_M, 2 * spacing_m)) | engine.mask_points(model, pts, 2 * spacing_m))
+    ss, zz = np.meshgrid(s, z)
+    trend = -2.0 * np.log(np.maximum(np.hypot(ss, zz - feed_m[2]), spacing_m))
+    got = adaptive.refine(ss.shape, evaluate, ratio, adaptive.LEVELS, stride, near.reshape(ss.shape), None, trend)
+    return ratio(got.values, None, None)
 
 
 def _floors(site: Site, origin, u, s_lo: float, s_hi: float) -> tuple[Floor, ...]:
