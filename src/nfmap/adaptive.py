@@ -13,6 +13,9 @@ plan point inside it evaluated) when
   ``FLOOR``) refines the cell; and after refinement a cell whose evaluated boundary points
   (shared with refined neighbours) straddle a level or miss the interpolation is refined too.
 
+Each area's worst point is then made an evaluated one (``settle_worst``): the highest interpolated
+points of an area are evaluated until its worst is a point NEC computed.
+
 The points of cells not refined take log-bilinear interpolation of the corners' field
 quantities (E and H along the body line: smooth, positive, decaying as powers of distance) about
 a ``trend`` (the log of the inverse square of the distance from the fed antenna's feed, so that
@@ -52,6 +55,36 @@ class Refined:
 def stride_for(spacing_m: float) -> int:
     """Coarse stride in plan points: about ``COARSE_M``, at least 2."""
     return max(2, int(round(COARSE_M / spacing_m)))
+
+
+def settle_worst(got: Refined, evaluate, ratio, labels: np.ndarray, per_round: int = 4, rounds: int = 4) -> Refined:
+    """Evaluate each labelled region's worst points until its worst is an evaluated point, never an
+    interpolated one (``labels``: an int map, -2 outside every region). At most ``rounds`` rounds of
+    ``per_round`` points a region; the filled values are updated in place."""
+    values, done = got.values, got.evaluated.copy()
+    iy_all, ix_all = np.indices(done.shape)
+    for _ in range(rounds):
+        r = ratio({k: v.ravel() for k, v in values.items()}, iy_all.ravel(), ix_all.ravel()).reshape(done.shape)
+        pick_y, pick_x = [], []
+        for lab in np.unique(labels[labels > -2]):
+            inside = (labels == lab) & np.isfinite(r)
+            if not inside.any():
+                continue
+            worst = np.max(r[inside])
+            if done[inside & (r == worst)].any():
+                continue
+            cand = np.flatnonzero((inside & ~done).ravel())
+            top = cand[np.argsort(r.ravel()[cand])[::-1][:per_round]]
+            pick_y.append(top // done.shape[1])
+            pick_x.append(top % done.shape[1])
+        if not pick_y:
+            break
+        iy, ix = np.concatenate(pick_y), np.concatenate(pick_x)
+        new = evaluate(iy, ix)
+        for name, v in new.items():
+            values[name][iy, ix] = v
+        done[iy, ix] = True
+    return Refined(values, done, int(done.sum()))
 
 
 def _coarse(n: int, stride: int) -> np.ndarray:

@@ -660,6 +660,9 @@ def _adaptive_level(site: Site, pl: Plan, lv: Level, model: engine.Model, t, wor
     trend = -2.0 * np.log(np.maximum(r, pl.spacing_m))
     got = adaptive.refine(xx.shape, evaluate, ratio, adaptive.LEVELS, stride, near.reshape(xx.shape),
                           _edges(site, lv, xs, ys), trend)
+    # each area's worst (and the ground outside every area) at a point NEC computed
+    labels = np.where(lv.place[lv.window], lv.area_index[lv.window], -2)
+    got = adaptive.settle_worst(got, evaluate, ratio, labels)
     return tuple(got.values[k] for k in FIELDS), (sol[0] if sol else None), got.plan_points * len(heights)
 
 
