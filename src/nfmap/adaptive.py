@@ -4,8 +4,8 @@ A level's plan lattice (spacing d) is first evaluated on a coarse sub-lattice (e
 row and column, and the last ones). Each coarse cell is then refined to the full spacing (every
 plan point inside it evaluated) when
 
-* a corner is masked (too close to a wire), or it holds plan points within ``WIRE_REACH_M`` of a
-  fed wire or two spacings of any wire (``hard``: the field changes on the scale of the spacing);
+* a corner is masked (too close to a wire), or it holds plan points within ``WIRE_REACH_M`` (or two
+  spacings) of any wire (``hard``: the field changes on the scale of the spacing there);
 * its corners' ratios straddle a level that is drawn or judged (``levels``);
 * it holds an area edge, a line or a floor edge (``soft``) and its ratio reaches ``EDGE_FLOOR``;
 * the interpolation misses: the centre of every cell not refined is evaluated and compared with
@@ -36,7 +36,7 @@ TOLERANCE = 0.005  # interpolated ratio within 0.5 % of the evaluated one at the
 FLOOR = 2e-4  # ... plus this (2 % of a ratio of 0.01)
 EDGE_FLOOR = 0.05  # area, line and floor edges are refined where the ratio reaches this
 MAX_ROUNDS = 4
-WIRE_REACH_M = 1.0  # plan points this close to a fed wire (or two spacings to any wire) are evaluated in full
+WIRE_REACH_M = 1.0  # plan points this close to a wire (or two spacings, if more) are evaluated in full
 LEVELS = (0.1, 0.5, 1.0)  # the levels judged (1, 0.5) and the lowest drawn (0.1): their contours are resolved
 
 Values = dict[str, np.ndarray]

@@ -198,6 +198,7 @@ class Assessment:
     warnings: tuple[str, ...]
     edge_ratio: float = 0.0  # the largest ratio on the lattice's outer edge (any transmission or the combined case)
     margin_given_m: float | None = None  # the site file's margin, when the lattice was grown beyond it
+    exhaustive: bool = False  # every lattice point evaluated (else adaptive: nfmap.adaptive)
 
     @property
     def over(self) -> bool:
@@ -383,7 +384,9 @@ def _assess_once(site: Site, workers: engine.Workers, progress, exhaustive: bool
     points = [0]
     for t in site.transmissions:
         results.append(_one(site, pl, lats, t, workers, progress, notes, exhaustive, points))
-    if not exhaustive:
+    if exhaustive:
+        notes.append("Every lattice point evaluated with NEC (--exhaustive)")
+    else:
         full = sum(lat.size for lat in lats) * sum(len(headings_for(site, t.antenna)) for t in site.transmissions)
         notes.append(f"Adaptive lattice: {points[0]} of {full} lattice points evaluated with NEC "
                      f"({100 * points[0] / full:.0f} %); the rest interpolated from their cell's corners where that "
@@ -392,7 +395,7 @@ def _assess_once(site: Site, workers: engine.Workers, progress, exhaustive: bool
     comb = combined(site, pl, results)
     edge = max([edge_ratio(r.ratio) for r in results] + [edge_ratio(comb.ratio)])
     return Assessment(site, pl, tuple(results), comb, points[0], engine.default_h_method(site.ground), tuple(notes),
-                      edge)
+                      edge, exhaustive=exhaustive)
 
 
 def edge_ratio(ratio: np.ndarray) -> float:
@@ -650,10 +653,9 @@ def _adaptive_level(site: Site, pl: Plan, lv: Level, model: engine.Model, t, wor
     xx, yy = np.meshgrid(xs, ys)
     column = np.column_stack([np.repeat(xx.ravel(), len(heights)), np.repeat(yy.ravel(), len(heights)),
                               np.tile(heights, xx.size)])
-    # the fed antenna's neighbourhood and the passive ones' (two spacings) are evaluated in full
-    fed = engine.Model((model.structures[model.active],), 0, model.frequency_mhz, model.ground)
-    near = (engine.mask_points(fed, column, max(adaptive.WIRE_REACH_M, 2 * pl.spacing_m))
-            | engine.mask_points(model, column, 2 * pl.spacing_m)).reshape(xx.size, len(heights)).any(axis=1)
+    # every wire's neighbourhood is evaluated in full
+    reach = max(adaptive.WIRE_REACH_M, 2 * pl.spacing_m)
+    near = engine.mask_points(model, column, reach).reshape(xx.size, len(heights)).any(axis=1)
     # fields fall off roughly as the inverse square of the distance from the feed: interpolate about that
     feed = np.array(feed_point_m(model.structures[model.active]))
     r = np.sqrt((xx - feed[0]) ** 2 + (yy - feed[1]) ** 2 + (heights.mean() - feed[2]) ** 2)

@@ -419,17 +419,6 @@ def mask_points(model: Model, points_m: np.ndarray, extra_m: float = 0.0) -> np.
     return masked
 
 
-def wire_distance_m(model: Model, points_m: np.ndarray) -> np.ndarray:
-    """Distance from each point to the nearest wire axis of the model [m]."""
-    pts = np.asarray(points_m, float)
-    out = np.full(len(pts), np.inf)
-    for a, b, _ in exclusion_m(model):
-        ab = b - a
-        t = np.clip(((pts - a) @ ab) / (ab @ ab), 0.0, 1.0)
-        out = np.minimum(out, np.linalg.norm(pts - (a + t[:, None] * ab), axis=1))
-    return out
-
-
 def default_h_method(ground_: Ground) -> str:
     return "curl" if ground_.finite else "nh"
 

@@ -136,6 +136,7 @@ def results_doc(a: Assessment) -> dict:
             "body_heights_m": site.grid.body.heights_m().tolist(),
             "spatial": site.grid.spatial,
             "points_evaluated": a.points_evaluated,
+            "evaluation": "exhaustive" if a.exhaustive else "adaptive",
             "margin_m": site.grid.margin_m,
             "margin_given_m": a.margin_given_m if a.margin_given_m is not None else site.grid.margin_m,
             "edge_ratio_max": _num(a.edge_ratio),
