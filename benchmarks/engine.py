@@ -3,6 +3,10 @@ average ground, with 1 and 2 jobs, the overhead against a bare PyNEC script doin
 evaluations, and the cost of H relative to E.
 
     python benchmarks/engine.py [--n 100] [--nz 9]
+
+It also prints the share of points where the reference H is unsteady: where its 1, 2 and 4 cm stencils
+differ by more than 0.5 % (NEC-2's Sommerfeld interpolation steps E by up to about 1 % across its cells;
+a stencil across a step turns it into a spike of H; see nfmap.engine).
 """
 
 import argparse
@@ -60,6 +64,18 @@ def best_of(repeat, fn):
     return min(times)
 
 
+def _unsteady(model, lattice, pool) -> float:
+    """Share of the lattice's live points where the reference H moves by more than 0.5 % between 1, 2 and 4 cm."""
+    ref = engine.near_fields(model, lattice, 100.0, jobs=pool)
+    mag = np.linalg.norm(ref.h_a_per_m, axis=1)
+    live = ~ref.masked
+    moved = np.zeros(len(mag), bool)
+    for step_m in (0.01, 0.04):
+        other = engine.near_fields(model, lattice, 100.0, jobs=pool, step_m=step_m)
+        moved |= np.linalg.norm(other.h_a_per_m - ref.h_a_per_m, axis=1) > 0.005 * mag
+    return float((moved & live).sum() / live.sum())
+
+
 def main():
     for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS"):
         os.environ.setdefault(var, "1")  # one core per job, as the CLI runs (PyNEC loads later)
@@ -70,7 +86,7 @@ def main():
     args = ap.parse_args()
     print(f"lattice {args.n} x {args.n} x {args.nz}, 0.3 m spacing, average ground, H from curl E; best of {args.repeat}")
     print(f"{'antenna':<30} {'segs':>5} {'pts/s 1 job':>12} {'pts/s 2 jobs':>13} {'speed-up':>9} {'overhead':>9} "
-          f"{'E+H / E':>8}")
+          f"{'E+H / E':>8} {'unsteady H':>11}")
     for name, (make, f) in CASES.items():
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -81,10 +97,11 @@ def main():
         with engine.Workers(2) as pool:
             engine.near_fields(m, lat, 100.0, jobs=pool)  # start the workers once, as a run does
             t2 = best_of(args.repeat, lambda m=m, lat=lat, pool=pool: engine.near_fields(m, lat, 100.0, jobs=pool))
+            unsteady = _unsteady(m, lat, pool)
         tb6 = best_of(args.repeat, lambda m=m, lat=lat: bare(m, lat, SIX))
         tb1 = best_of(args.repeat, lambda m=m, lat=lat: bare(m, lat, SIX[:1]))
         print(f"{name:<30} {s.segment_count:>5} {lat.size / t1:>12.0f} {lat.size / t2:>13.0f} {t1 / t2:>9.2f} "
-              f"{t1 / tb6:>9.2f} {tb6 / tb1:>8.1f}")
+              f"{t1 / tb6:>9.2f} {tb6 / tb1:>8.1f} {100 * unsteady:>10.1f}%")
     print("overhead: nfmap (1 job) / bare PyNEC making the same six E evaluations; "
           "E+H / E: cost of E and H from curl E over one E evaluation")
 

@@ -539,9 +539,13 @@ def near_fields(
     h_method = h_method or default_h_method(model.ground)
     if h_method not in ("nh", "curl"):
         raise ValueError(f"h_method must be 'nh' or 'curl', got {h_method!r}")
+    n_jobs = jobs.jobs if isinstance(jobs, Workers) else int(jobs)
     if isinstance(where, Lattice):
         pts = where.points()
-        chunks = where.split_y(math.ceil(where.size / LATTICE_CHUNK_POINTS))  # never depends on jobs
+        # a multiple of the jobs, so that no worker is left alone with a last chunk (each point's field never
+        # depends on the chunking)
+        parts = math.ceil(where.size / LATTICE_CHUNK_POINTS)
+        chunks = where.split_y(math.ceil(parts / n_jobs) * n_jobs if parts > 1 else 1)
     elif isinstance(where, Columns):
         pts = where.points()
         chunks = None
@@ -550,7 +554,6 @@ def near_fields(
         chunks = None
     masked = mask_points(model, pts)
     # small calls (an adaptive lattice's rounds, a section) still keep every worker busy; results never depend on it
-    n_jobs = jobs.jobs if isinstance(jobs, Workers) else int(jobs)
     if isinstance(where, Columns):
         live = np.flatnonzero(~masked.reshape(-1, where.nz).all(axis=1))  # columns with a point to evaluate
         per = max(1, min(CHUNK_POINTS // where.nz, math.ceil(len(live) / (2 * n_jobs))))
