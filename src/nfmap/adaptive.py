@@ -87,6 +87,16 @@ def settle_worst(got: Refined, evaluate, ratio, labels: np.ndarray, per_round: i
     return Refined(values, done, int(done.sum()))
 
 
+def inverse_square_trend(distance_m: np.ndarray, floor_m: float) -> np.ndarray:
+    """The ``trend`` of a field falling off as the inverse square of the distance from its source (floored)."""
+    return -2.0 * np.log(np.maximum(distance_m, floor_m))
+
+
+def _blend(c: list[np.ndarray], ty: np.ndarray, tx: np.ndarray) -> np.ndarray:
+    """Bilinear blend of four corner values (y0x0, y0x1, y1x0, y1x1) at fractions ``ty``, ``tx``."""
+    return c[0] * (1 - ty) * (1 - tx) + c[1] * (1 - ty) * tx + c[2] * ty * (1 - tx) + c[3] * ty * tx
+
+
 def _coarse(n: int, stride: int) -> np.ndarray:
     return np.unique(np.r_[np.arange(0, n, stride), n - 1])
 
@@ -213,8 +223,7 @@ def _interpolated(v: np.ndarray, b: tuple[int, int, int, int], trend: np.ndarray
     y0, y1, x0, x1 = b
     c = np.log(np.maximum(v[[y0, y0, y1, y1], [x0, x1, x0, x1]], 1e-300)) - trend[[y0, y0, y1, y1], [x0, x1, x0, x1]]
     ty, tx = np.meshgrid(np.linspace(0.0, 1.0, y1 - y0 + 1), np.linspace(0.0, 1.0, x1 - x0 + 1), indexing="ij")
-    return np.exp(c[0] * (1 - ty) * (1 - tx) + c[1] * (1 - ty) * tx + c[2] * ty * (1 - tx) + c[3] * ty * tx
-                  + trend[y0 : y1 + 1, x0 : x1 + 1])
+    return np.exp(_blend(c, ty, tx) + trend[y0 : y1 + 1, x0 : x1 + 1])
 
 
 def _misses(values: Values, rmap, done, boxes: list, ratio, levels, trend) -> list[bool]:
@@ -238,8 +247,7 @@ def _misses(values: Values, rmap, done, boxes: list, ratio, levels, trend) -> li
     corners = ((b[:, 0], b[:, 2]), (b[:, 0], b[:, 3]), (b[:, 1], b[:, 2]), (b[:, 1], b[:, 3]))
     for name, v in values.items():
         c = [np.log(np.maximum(v[yy, xx], 1e-300)) - trend[yy, xx] for yy, xx in corners]
-        guess[name] = np.exp(c[0] * (1 - ty) * (1 - tx) + c[1] * (1 - ty) * tx + c[2] * ty * (1 - tx) + c[3] * ty * tx
-                             + trend[iy, ix])
+        guess[name] = np.exp(_blend(c, ty, tx) + trend[iy, ix])
     r = rmap[iy, ix]
     off = np.abs(ratio(guess, iy, ix) - r) > TOLERANCE * r + FLOOR
     bad = np.isnan(r) | off

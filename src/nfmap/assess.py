@@ -634,18 +634,16 @@ def _adaptive_level(site: Site, pl: Plan, lv: Level, model: engine.Model, t, wor
     def evaluate(iy: np.ndarray, ix: np.ndarray) -> dict[str, np.ndarray]:
         cols = engine.Columns(np.column_stack([xs[ix], ys[iy]]), float(heights[0]), dz, len(heights), pl.spacing_m)
         nf = engine.near_fields(model, cols, t.envelope_power_w, jobs=workers, progress=progress)
-        sol.append(nf.solution)
+        sol[:] = sol or [nf.solution]  # one solution serves: the model is the same
         e = engine.rms_magnitude(nf.e_v_per_m).reshape(len(iy), len(heights)).T
         h = engine.rms_magnitude(nf.h_a_per_m).reshape(len(iy), len(heights)).T
         return dict(zip(FIELDS, (averaging.body_reduce(e, site.grid.spatial), averaging.body_reduce(h, site.grid.spatial),
                                  averaging.spatial_peak(e), averaging.spatial_peak(h)), strict=True))
 
     def ratio(v: dict[str, np.ndarray], iy: np.ndarray, ix: np.ndarray) -> np.ndarray:
+        per, _ = tier_ratios(site, t, occupational[iy, ix], *(v[k] for k in FIELDS))
         worst = np.zeros(len(iy))
-        occ = occupational[iy, ix]
-        per = {tr: t.check_ratios(site.standard, tr, *(v[k] for k in FIELDS)) for tr in ("public", "occupational")}
-        for cid, (r_pub, _) in per["public"].items():
-            r = np.where(occ, per["occupational"][cid][0], r_pub)
+        for r, _ in per.values():
             worst = np.where(np.isnan(r), np.nan, np.fmax(worst, r))
         return worst
 
@@ -658,8 +656,8 @@ def _adaptive_level(site: Site, pl: Plan, lv: Level, model: engine.Model, t, wor
     near = engine.mask_points(model, column, reach).reshape(xx.size, len(heights)).any(axis=1)
     # fields fall off roughly as the inverse square of the distance from the feed: interpolate about that
     feed = np.array(feed_point_m(model.structures[model.active]))
-    r = np.sqrt((xx - feed[0]) ** 2 + (yy - feed[1]) ** 2 + (heights.mean() - feed[2]) ** 2)
-    trend = -2.0 * np.log(np.maximum(r, pl.spacing_m))
+    trend = adaptive.inverse_square_trend(np.sqrt((xx - feed[0]) ** 2 + (yy - feed[1]) ** 2 + (heights.mean() - feed[2]) ** 2),
+                                          pl.spacing_m)
     got = adaptive.refine(xx.shape, evaluate, ratio, adaptive.LEVELS, stride, near.reshape(xx.shape),
                           _edges(site, lv, xs, ys), trend)
     # each area's worst (and the ground outside every area) at a point NEC computed
@@ -694,15 +692,21 @@ def judge_level(site: Site, lv: Level, t, e, h, e_pk, h_pk) -> tuple[Judged, np.
     ground outside every area against public). Returns the judged level and the whole-body ratio
     against the public tier where people stand.
     """
-    occ = lv.tier == "occupational"
+    per, r_pub_whole = tier_ratios(site, t, lv.tier == "occupational", e, h, e_pk, h_pk)
+    by_check = {cid: np.where(lv.place, r, 0.0) for cid, (r, _) in per.items()}
+    gov_by = {cid: g for cid, (_, g) in per.items()}
+    return judge(by_check, gov_by), np.where(lv.place, r_pub_whole, 0.0)
+
+
+def tier_ratios(site: Site, t, occupational: np.ndarray, e, h, e_pk, h_pk):
+    """Each check's (ratio, governing quantity) with every point against its own tier (occupational where
+    ``occupational``, else public), and the whole-body ratio against the public tier."""
     per = {tier: t.check_ratios(site.standard, tier, e, h, e_pk, h_pk) for tier in ("public", "occupational")}
-    by_check, gov_by = {}, {}
+    out = {}
     for cid, (r_pub, g_pub) in per["public"].items():
         r_occ, g_occ = per["occupational"][cid]
-        by_check[cid] = np.where(lv.place, np.where(occ, r_occ, r_pub), 0.0)
-        gov_by[cid] = np.where(occ, g_occ, g_pub)
-    r_pub_whole = np.where(lv.place, per["public"]["whole-body"][0], 0.0)
-    return judge(by_check, gov_by), r_pub_whole
+        out[cid] = (np.where(occupational, r_occ, r_pub), np.where(occupational, g_occ, g_pub))
+    return out, per["public"]["whole-body"][0]
 
 
 def display_ratio(pl: Plan, ratios_by_level: list[np.ndarray]) -> np.ndarray:

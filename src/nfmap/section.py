@@ -149,7 +149,7 @@ def _adaptive_ratio(site, t, model, feed_m, origin, u, s, z, spacing_m, workers)
     reach = max(adaptive.WIRE_REACH_M, 2 * spacing_m)
     near = engine.mask_points(model, pts, reach)
     ss, zz = np.meshgrid(s, z)
-    trend = -2.0 * np.log(np.maximum(np.hypot(ss, zz - feed_m[2]), spacing_m))
+    trend = adaptive.inverse_square_trend(np.hypot(ss, zz - feed_m[2]), spacing_m)
     got = adaptive.refine(ss.shape, evaluate, ratio, adaptive.LEVELS, stride, near.reshape(ss.shape), None, trend)
     return ratio(got.values, None, None)
 
