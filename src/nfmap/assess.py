@@ -388,10 +388,13 @@ def _assess_once(site: Site, workers: engine.Workers, progress, exhaustive: bool
         notes.append("Every lattice point evaluated with NEC (--exhaustive)")
     else:
         full = sum(lat.size for lat in lats) * sum(len(headings_for(site, t.antenna)) for t in site.transmissions)
-        notes.append(f"Adaptive lattice: {points[0]} of {full} lattice points evaluated with NEC "
-                     f"({100 * points[0] / full:.0f} %); the rest interpolated from their cell's corners where that "
-                     f"reproduces the evaluated ratio within {100 * adaptive.TOLERANCE:g} % + {adaptive.FLOOR:g} (--exhaustive "
-                     "evaluates every point)")
+        notes.append(
+            f"Adaptive lattice: {points[0]} of {full} lattice points evaluated with NEC ({100 * points[0] / full:.0f} %): "
+            f"every cell crossed by the 0.1, 0.5 or 1 line, within {adaptive.WIRE_REACH_M:g} m of a wire or on an area "
+            "edge where the ratio reaches 0.05 in full; elsewhere interpolated from the cell's corners where that "
+            f"reproduces the evaluated centre within {100 * adaptive.TOLERANCE:g} % + {adaptive.FLOOR:g}. Each area's "
+            f"worst point is a computed one. A hot spot smaller than {adaptive.COARSE_M:g} m across and more than "
+            f"{adaptive.WIRE_REACH_M:g} m from every wire could be missed; --exhaustive evaluates every point")
     comb = combined(site, pl, results)
     edge = max([edge_ratio(r.ratio) for r in results] + [edge_ratio(comb.ratio)])
     return Assessment(site, pl, tuple(results), comb, points[0], engine.default_h_method(site.ground), tuple(notes),

@@ -389,7 +389,9 @@ def _assumptions(a) -> list[str]:
         "(NEC-2 cannot model buried wires); this tends to overstate the fields slightly. Over perfect ground they "
         "connect to the ground plane with a loss resistor.",
         "H over a finite ground is derived from the Sommerfeld E field by Faraday's law (central differences, 2 cm), "
-        "because NEC-2's near-H routine uses the reflection-coefficient approximation for the ground term."
+        "because NEC-2's near-H routine uses the reflection-coefficient approximation for the ground term. NEC-2's "
+        "Sommerfeld interpolation steps E by up to about 1 % between its cells; where the 2 cm stencil straddles "
+        "a step, H shows an isolated spike (a speck on a map, reading high or low)."
         if a.h_method == "curl" else "H is NEC's near-H field (exact for free space and perfect ground).",
         "Masked: a plan point whose body line comes within the exclusion distance of a wire (10 radii or half a "
         "segment, the larger) or below ground; its fields are not computed and it never counts as compliant.",
