@@ -112,22 +112,6 @@ def _contour(pl, ratio, level):
     return shapely.boundary(assess.exceedance_polygons(pl, np.nan_to_num(ratio), level))
 
 
-def _spike(pl, t, area) -> bool:
-    """True when an area's exhaustive worst point is an isolated H spike: H governs there and the ratio is
-    more than 10 % above the median of its eight neighbours (NEC's Sommerfeld interpolation steps E by up to
-    about 1 % across its cells; the reference's 2 cm stencil turns a step inside it into such a spike)."""
-    if area.where_m is None or area.governing != "H":
-        return False
-    iy = int(np.argmin(np.abs(pl.y_m - area.where_m[1])))
-    ix = int(np.argmin(np.abs(pl.x_m - area.where_m[0])))
-    for lv in t.levels:
-        r = lv.ratio
-        if 0 < iy < r.shape[0] - 1 and 0 < ix < r.shape[1] - 1 and np.isclose(r[iy, ix], area.max_ratio):
-            around = np.delete(r[iy - 1 : iy + 2, ix - 1 : ix + 2].ravel(), 4)
-            return bool(r[iy, ix] > 1.1 * np.nanmedian(around))
-    return False
-
-
 EXAMPLES = ["demo.toml", "demo-raised.toml", "balcony.toml", "end-fed.toml", "inverted-v.toml"]
 
 
@@ -142,7 +126,7 @@ def test_adaptive_matches_exhaustive_on_the_examples(name):
     for ta, te in zip(a.transmissions, e.transmissions, strict=True):
         for aa, ae in zip(ta.areas, te.areas, strict=True):
             assert aa.over == ae.over, (ta.name, aa.name)
-            if _spike(e.plan, te, ae):
+            if adaptive.isolated_h_spike(e.plan, te, ae):
                 continue  # the exhaustive worst is an artefact of the reference H (module docstring)
             assert (aa.max_ratio or 0) == pytest.approx(ae.max_ratio or 0, rel=0.02, abs=adaptive.FLOOR), (ta.name, aa.name)
         if te.power_ceiling_w is not None:

@@ -397,7 +397,10 @@ def _assess_once(site: Site, workers: engine.Workers, progress, exhaustive: bool
             f"{adaptive.WIRE_REACH_M:g} m from every wire could be missed; --exhaustive evaluates every point")
     comb = combined(site, pl, results)
     edge = max([edge_ratio(r.ratio) for r in results] + [edge_ratio(comb.ratio)])
-    return Assessment(site, pl, tuple(results), comb, points[0], engine.default_h_method(site.ground), tuple(notes),
+    h_method = engine.default_h_method(site.ground)
+    if h_method == "curl" and not exhaustive:
+        h_method = "sampled"
+    return Assessment(site, pl, tuple(results), comb, points[0], h_method, tuple(notes),
                       edge, exhaustive=exhaustive)
 
 
@@ -633,13 +636,22 @@ def _adaptive_level(site: Site, pl: Plan, lv: Level, model: engine.Model, t, wor
     tier = lv.tier[lv.window]
     occupational = tier == "occupational"
     sol = []
+    # over a finite ground H comes from curl E at nodes, interpolated where it is smooth (engine.SampledH)
+    sampler = engine.SampledH(model, engine.Lattice((float(xs[0]), float(ys[0]), float(heights[0])),
+                                                    (pl.spacing_m, pl.spacing_m, dz), (len(xs), len(ys), len(heights))),
+                              t.envelope_power_w, workers, progress) if engine.samples_h(model) else None
 
     def evaluate(iy: np.ndarray, ix: np.ndarray) -> dict[str, np.ndarray]:
-        cols = engine.Columns(np.column_stack([xs[ix], ys[iy]]), float(heights[0]), dz, len(heights), pl.spacing_m)
-        nf = engine.near_fields(model, cols, t.envelope_power_w, jobs=workers, progress=progress)
-        sol[:] = sol or [nf.solution]  # one solution serves: the model is the same
-        e = engine.rms_magnitude(nf.e_v_per_m).reshape(len(iy), len(heights)).T
-        h = engine.rms_magnitude(nf.h_a_per_m).reshape(len(iy), len(heights)).T
+        if sampler is not None:
+            e_c, h_c = sampler.fields(iy, ix)
+            sol[:] = sol or [sampler.solution]
+        else:
+            cols = engine.Columns(np.column_stack([xs[ix], ys[iy]]), float(heights[0]), dz, len(heights), pl.spacing_m)
+            nf = engine.near_fields(model, cols, t.envelope_power_w, jobs=workers, progress=progress)
+            sol[:] = sol or [nf.solution]  # one solution serves: the model is the same
+            e_c, h_c = nf.e_v_per_m, nf.h_a_per_m
+        e = engine.rms_magnitude(e_c).reshape(len(iy), len(heights)).T
+        h = engine.rms_magnitude(h_c).reshape(len(iy), len(heights)).T
         return dict(zip(FIELDS, (averaging.body_reduce(e, site.grid.spatial), averaging.body_reduce(h, site.grid.spatial),
                                  averaging.spatial_peak(e), averaging.spatial_peak(h)), strict=True))
 

@@ -26,6 +26,17 @@ near field's curvature; differences taken on a 0.3 m lattice were measured to di
 reference by up to 30 % at points where the reference does not change with its step, so the
 reference stays.
 
+H for about the cost of E
+-------------------------
+Six E evaluations a point make H the whole cost of an assessment. :class:`SampledH` computes the
+reference only at nodes: every point near a wire, every s-th point (s = 2, 4, 8) where the nearest
+wire is far compared with s spacings and the wavelength; between nodes E is computed and |H| is
+interpolated by cubic Lagrange polynomials on the nodes' magnitudes. Against the reference, at points
+where it is steady, on a 0.3 m lattice around each of ``benchmarks/engine.py``'s antennas: within
+1.6 % everywhere (0.5 % at the 99th percentile), at 1.2-1.9 E evaluations a point for a dipole, an
+end-fed wire and a beam, 4.5 for a ground-mounted vertical whose radials run under the whole lattice
+(there every point is near a wire and is a node).
+
 References
 ----------
 [1] G. J. Burke, A. J. Poggio, "Numerical Electromagnetics Code (NEC) - Method of Moments",
@@ -44,7 +55,7 @@ from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-from scipy import constants
+from scipy import constants, ndimage
 
 from antennas import C0_M_PER_S, Structure, segment_at
 
@@ -199,8 +210,8 @@ class Columns:
     """Vertical lines of points: at each plan point ``xy_m`` (N, 2) the heights z0 + k dz, k < nz.
 
     Points are ordered column by column, heights fastest; each column is one NEC near-field card
-    (far fewer cards than single points), and consecutive columns on one row ``run_dx_m`` apart
-    share one card.
+    (far fewer cards than single points); when ``run_dx_m`` > 0, consecutive columns on one row at equal
+    gaps (the plan spacing, or a multiple of it) share one card.
     """
 
     xy_m: np.ndarray
@@ -350,16 +361,16 @@ def _columns(counter: _Counter, cols: Columns, offset, kind: str, name: str) -> 
     xy = np.asarray(cols.xy_m, float).reshape(-1, 2)
     out = np.empty((len(xy), cols.nz, 3), complex)
     ox, oy, oz = (float(v) for v in offset)
-    dx = cols.run_dx_m
     k = 0
     try:
         while k < len(xy):
             j = k + 1
-            if dx > 0:
-                while j < len(xy) and xy[j, 1] == xy[k, 1] and abs(xy[j, 0] - xy[j - 1, 0] - dx) <= 1e-9 * max(1.0, dx):
+            gap = xy[k + 1, 0] - xy[k, 0] if cols.run_dx_m > 0 and k + 1 < len(xy) and xy[k + 1, 1] == xy[k, 1] else 0.0
+            if gap > 0:
+                while j < len(xy) and xy[j, 1] == xy[k, 1] and abs(xy[j, 0] - xy[j - 1, 0] - gap) <= 1e-9 * max(1.0, gap):
                     j += 1
             nf = counter.card(kind, (0, j - k, 1, cols.nz, float(xy[k, 0]) + ox, float(xy[k, 1]) + oy, cols.z0_m + oz,
-                                     dx if j - k > 1 else 0.0, 0.0, cols.dz_m))
+                                     gap if j - k > 1 else 0.0, 0.0, cols.dz_m))
             v = np.column_stack([np.asarray(nf.get_field_x()), np.asarray(nf.get_field_y()), np.asarray(nf.get_field_z())])
             out[k:j] = v.reshape(cols.nz, j - k, 3).transpose(1, 0, 2)  # x fastest, then height
             k = j
@@ -385,14 +396,60 @@ def _fields_peak(counter: _Counter, where, model: Model, h_method: str, step_m: 
             return _points(counter, where + offset, kind, name)
     if h_method == "nh":
         return evaluate("e", (0.0, 0.0, 0.0)), evaluate("h", (0.0, 0.0, 0.0))
+    if h_method == "e-only":
+        e = evaluate("e", (0.0, 0.0, 0.0))
+        return e, np.zeros_like(e)
+    if h_method == "robust":
+        return _robust_curl(evaluate, model, step_m)
     half = step_m / 2.0
     plus = [evaluate("e", half * _AXES[a]) for a in range(3)]
     minus = [evaluate("e", -half * _AXES[a]) for a in range(3)]
     e = sum(plus + minus) / 6.0
-    d = [(plus[a] - minus[a]) / step_m for a in range(3)]  # d[a][:, c] = dE_c / dx_a
+    h = _curl_h([(plus[a] - minus[a]) / step_m for a in range(3)], model)
+    if h_method == "checked":
+        # E at the point itself: the halves of each axis's stencil give one-sided H; a Sommerfeld step in one
+        # half sets them apart by twice the error it makes in the central H
+        e = evaluate("e", (0.0, 0.0, 0.0))
+        left = _curl_h([(e - minus[a]) / half for a in range(3)], model)
+        right = _curl_h([(plus[a] - e) / half for a in range(3)], model)
+        odd = rms_magnitude(right - left) > 2 * H_STEADY * rms_magnitude(h)
+        if isinstance(where, Columns):  # height by height: a row's points share NEC cards
+            grid = odd.reshape(-1, where.nz)
+            xy = np.asarray(where.xy_m, float).reshape(-1, 2)
+            for k in np.flatnonzero(grid.any(axis=0)):
+                cols = np.flatnonzero(grid[:, k])
+                level = replace(where, xy_m=xy[cols], z0_m=where.z0_m + k * where.dz_m, nz=1)
+                h[cols * where.nz + k] = _fields_peak(counter, level, model, "robust", step_m)[1]
+        elif odd.any():
+            h[odd] = _fields_peak(counter, (where if isinstance(where, np.ndarray) else where.points())[odd], model,
+                                  "robust", step_m)[1]
+    return e, h
+
+
+def _curl_h(d: list[np.ndarray], model: Model) -> np.ndarray:
+    """H from the derivatives d[a][:, c] = dE_c / dx_a by Faraday's law."""
     curl = np.column_stack([d[1][:, 2] - d[2][:, 1], d[2][:, 0] - d[0][:, 2], d[0][:, 1] - d[1][:, 0]])
     omega = 2 * math.pi * model.frequency_mhz * 1e6
-    return e, 1j * curl / (omega * MU0_H_PER_M)
+    return 1j * curl / (omega * MU0_H_PER_M)
+
+
+H_METHODS = ("nh", "curl", "checked", "robust", "e-only", "sampled")
+ROBUST_OFFSETS = (-1.0, -0.5, -0.25, 0.25, 0.5, 1.0)  # in units of the stencil step (2 cm: +-5 mm to +-2 cm)
+
+
+def _robust_curl(evaluate, model: Model, step_m: float):
+    """Peak E and H where a Sommerfeld step may lie inside the stencil: E at six offsets along each axis
+    (``ROBUST_OFFSETS`` x ``step_m``), each derivative the median of the five slopes between neighbouring
+    offsets (real and imaginary parts apart). A step crosses a line once: it spoils one slope of five
+    (two steps, two), and the median is the slope of the smooth field. E is the mean at +-step/4."""
+    offsets = np.asarray(ROBUST_OFFSETS) * step_m
+    d, e_mid = [], []
+    for a in range(3):
+        samples = np.stack([evaluate("e", o * _AXES[a]) for o in offsets])  # (6, N, 3)
+        slopes = np.diff(samples, axis=0) / np.diff(offsets)[:, None, None]
+        d.append(np.median(slopes.real, axis=0) + 1j * np.median(slopes.imag, axis=0))
+        e_mid.append(0.5 * (samples[2] + samples[3]))
+    return sum(e_mid) / 3.0, _curl_h(d, model)
 
 
 def exclusion_m(model: Model) -> list[tuple[np.ndarray, np.ndarray, float]]:
@@ -412,15 +469,33 @@ def mask_points(model: Model, points_m: np.ndarray, extra_m: float = 0.0) -> np.
     if model.ground.over_ground:
         masked |= pts[:, 2] < 0.0
     for a, b, r in exclusion_m(model):
-        ab = b - a
-        t = np.clip(((pts - a) @ ab) / (ab @ ab), 0.0, 1.0)
-        dist = np.linalg.norm(pts - (a + t[:, None] * ab), axis=1)
-        masked |= dist < r + extra_m
+        masked |= _segment_distance_m(pts, a, b) < r + extra_m
     return masked
+
+
+def _segment_distance_m(pts: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    ab = b - a
+    t = np.clip(((pts - a) @ ab) / (ab @ ab), 0.0, 1.0)
+    return np.linalg.norm(pts - (a + t[:, None] * ab), axis=1)
+
+
+def wire_distance_m(model: Model, points_m: np.ndarray) -> np.ndarray:
+    """Distance from each point to the nearest wire's axis [m]."""
+    pts = np.asarray(points_m, float).reshape(-1, 3)
+    out = np.full(len(pts), np.inf)
+    for a, b, _ in exclusion_m(model):
+        out = np.minimum(out, _segment_distance_m(pts, a, b))
+    return out
 
 
 def default_h_method(ground_: Ground) -> str:
     return "curl" if ground_.finite else "nh"
+
+
+def samples_h(model: Model) -> bool:
+    """Whether H is worth sampling (:class:`SampledH`): over a finite ground, where it costs six E
+    evaluations a point; elsewhere NEC's NH is exact and cheaper."""
+    return default_h_method(model.ground) == "curl"
 
 
 def _worker_init() -> None:
@@ -524,8 +599,10 @@ def near_fields(
     jobs : int or Workers
         Worker processes (or a pool kept by the caller); each builds and solves its own
         context. Results do not depend on it.
-    h_method : {"nh", "curl"}
-        H from NEC's NH card or from curl E; default "curl" over a finite ground, else "nh".
+    h_method : {"nh", "curl", "e-only"}
+        H from NEC's NH card or from curl E; default "curl" over a finite ground, else "nh"; "e-only" computes
+        E alone (one E evaluation per point; H is returned as zeros); "sampled" (a Lattice only): E at every
+        point, H from curl E at nodes and interpolated between them (:class:`SampledH`).
     progress : callable
         Called with the number of points finished after each chunk.
 
@@ -537,8 +614,17 @@ def near_fields(
     if not power_w > 0 or not math.isfinite(power_w):
         raise ValueError(f"power_w must be > 0, got {power_w}")
     h_method = h_method or default_h_method(model.ground)
-    if h_method not in ("nh", "curl"):
-        raise ValueError(f"h_method must be 'nh' or 'curl', got {h_method!r}")
+    if h_method not in H_METHODS:
+        raise ValueError(f"h_method must be one of {', '.join(H_METHODS)}; got {h_method!r}")
+    if h_method == "sampled":
+        if not isinstance(where, Lattice):
+            raise ValueError("h_method 'sampled' needs a Lattice")
+        nx, ny, nz = where.shape
+        iy, ix = np.divmod(np.arange(nx * ny), nx)
+        sampler = SampledH(model, Sheet.of(where), power_w, jobs, progress)
+        e, h = (v.reshape(ny, nx, nz, 3).transpose(2, 0, 1, 3).reshape(-1, 3) for v in sampler.fields(iy, ix))
+        return NearField(where.points(), e, h, ~np.isfinite(e).all(axis=1), "sampled", sampler.solution or solve(model),
+                         float(power_w), (f"H from curl E at {sampler.node_columns} of {nx * ny} columns",))
     n_jobs = jobs.jobs if isinstance(jobs, Workers) else int(jobs)
     if isinstance(where, Lattice):
         pts = where.points()
@@ -596,7 +682,7 @@ def near_fields(
     e, h = e_pk * scale, h_pk * scale
     e[masked] = np.nan
     h[masked] = np.nan
-    finite = np.isfinite(e).all(axis=1) & np.isfinite(h).all(axis=1)
+    finite = np.isfinite(e).all(axis=1) & (np.isfinite(h).all(axis=1) | (h_method == "e-only"))
     if np.any(~finite & ~masked):
         raise EngineError("near field", model.name, f"{int((~finite & ~masked).sum())} points gave NaN or inf")
     return NearField(pts, e, h, masked, h_method, sol, float(power_w))
@@ -609,6 +695,219 @@ def _merge_y(values: np.ndarray, chunks: list[Lattice], nx: int, nz: int) -> np.
         blocks.append(values[i : i + n].reshape(nz, c.shape[1], nx, 3))
         i += n
     return np.concatenate(blocks, axis=1).reshape(-1, 3)
+
+
+# H where it is smooth: curl E at nodes, interpolated between them (see SampledH)
+H_BLOCK = 4  # plan points per block side; a block's H nodes are every s-th point, s in H_STRIDES
+H_STRIDES = (1, 2, 4, 8)
+H_NODE_SCALE = 0.5  # node spacing <= this times the distance from the block to the nearest wire ...
+H_NODE_WAVELENGTHS = 0.125  # ... and <= this many wavelengths
+H_STEADY = 0.01  # a node between nodes whose central H may be off by more than this share (its one-sided halves
+# differ by twice it) takes the robust curl
+
+
+@functools.lru_cache(maxsize=64)
+def _axis_table(n: int, s: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Interpolation along one axis of ``n`` points with nodes at the multiples of ``s`` and at n - 1.
+
+    Returns, for every index i: the four nodes nearest i that bracket it (fewer on a short axis: repeated with
+    weight 0) and their cubic Lagrange weights (``idx``, ``w``, each (n, 4)), and the bracketing pair with
+    linear weights (``pair`` (n, 2), ``t`` (n,)). A node is its own only node (weight 1).
+    """
+    nodes = np.array(sorted(set(range(0, n, s)) | {n - 1}))
+    idx = np.zeros((n, 4), int)
+    w = np.zeros((n, 4))
+    pair = np.zeros((n, 2), int)
+    t = np.zeros(n)
+    for i in range(n):
+        j = int(np.searchsorted(nodes, i))
+        if j < len(nodes) and nodes[j] == i:
+            idx[i], w[i, 0], pair[i] = i, 1.0, i
+            continue
+        lo, hi = nodes[j - 1], nodes[j]
+        pair[i], t[i] = (lo, hi), (i - lo) / (hi - lo)
+        start = min(max(j - 2, 0), max(len(nodes) - 4, 0))
+        use = nodes[start: start + 4]
+        for k, a in enumerate(use):
+            others = [b for b in use if b != a]
+            w[i, k] = np.prod([(i - b) / (a - b) for b in others])
+            idx[i, k] = a
+        idx[i, len(use):] = use[-1]
+    return idx, w, pair, t
+
+
+@dataclass(frozen=True)
+class Sheet:
+    """The points origin + ix step_x + iy step_y + k (0, 0, dz) for ix < nx, iy < ny, k < nz: a plan lattice's
+    columns (``Sheet.of(lattice)``) or a vertical section (step_y upward, nz = 1)."""
+
+    origin_m: tuple[float, float, float]
+    step_x_m: tuple[float, float, float]
+    step_y_m: tuple[float, float, float]
+    nx: int
+    ny: int
+    nz: int = 1
+    dz_m: float = 0.0
+
+    @classmethod
+    def of(cls, lattice: Lattice) -> Sheet:
+        (dx, dy, dz), (nx, ny, nz) = lattice.step_m, lattice.shape
+        return cls(lattice.origin_m, (dx, 0.0, 0.0), (0.0, dy, 0.0), nx, ny, nz, dz)
+
+    @property
+    def spacing_m(self) -> float:
+        return float(max(np.linalg.norm(self.step_x_m), np.linalg.norm(self.step_y_m)))
+
+    def base(self, iy: np.ndarray, ix: np.ndarray) -> np.ndarray:
+        """The lowest point (k = 0) of each column (N, 3)."""
+        return (np.asarray(self.origin_m) + np.outer(ix, self.step_x_m) + np.outer(iy, self.step_y_m)).reshape(-1, 3)
+
+    def points(self, iy: np.ndarray, ix: np.ndarray) -> np.ndarray:
+        """Every point of the columns (N * nz, 3), heights fastest."""
+        b = self.base(iy, ix)
+        return np.repeat(b, self.nz, axis=0) + np.outer(np.tile(np.arange(self.nz), len(b)), (0.0, 0.0, self.dz_m))
+
+    def where(self, iy: np.ndarray, ix: np.ndarray):
+        """What :func:`near_fields` takes for these columns: Columns (a row's columns share NEC cards) when the
+        sheet's rows run along x and its columns are level, else the points."""
+        if self.step_x_m[1] == 0 and self.step_x_m[2] == 0 and self.step_y_m[2] == 0:
+            b = self.base(iy, ix)
+            return Columns(b[:, :2], float(self.origin_m[2]), float(self.dz_m), self.nz, float(self.step_x_m[0]))
+        return self.points(iy, ix)
+
+
+class SampledH:
+    """E and H on a sheet of columns (a lattice's plan, or a vertical section) with curl E only at nodes.
+
+    The sheet is cut into blocks of ``H_BLOCK`` x ``H_BLOCK`` columns. A block takes the largest stride s of
+    ``H_STRIDES`` for which s x spacing <= ``H_NODE_SCALE`` x d and <= ``H_NODE_WAVELENGTHS`` wavelengths,
+    d the smallest distance to a wire over the block widened by s columns on each side (every node its
+    points interpolate from), at every height. Its nodes are the columns at multiples of s (global indices,
+    so that blocks share them, and the last column). At a node E and H come from curl E (:func:`near_fields`,
+    "curl"). Between nodes E is computed (one E evaluation) and |H| is interpolated, height by height, by
+    cubic Lagrange polynomials in both directions on the four nearest nodes (three or two at a short axis);
+    the magnitude is interpolated as such (it is what is judged: a rotating phasor's interpolated vector would
+    read low), the direction bilinearly between the bracketing nodes. Near wires s = 1: every column is a
+    node and H is the reference (curl E with the default stencil). Nodes between nodes use a wider stencil
+    (``H_NODE_STEP`` x their distance to the wires, at most ``H_NODE_STEP_MAX_M``): it dilutes NEC's
+    Sommerfeld steps, and its truncation error is below 0.3 % at 2 m. A column whose interpolation meets a
+    masked node is a node of its own. Nodes are kept between calls, so an adaptive lattice asking round
+    after round pays for each node once.
+
+    Accuracy against the reference: the module docstring, ``benchmarks/engine.py`` and the tests.
+    """
+
+    def __init__(self, model: Model, sheet: Sheet | Lattice, power_w: float, jobs: int | Workers = 1,
+                 progress: Callable[[int], None] | None = None):
+        sheet = Sheet.of(sheet) if isinstance(sheet, Lattice) else sheet
+        self.model, self.sheet, self.power_w, self.jobs, self.progress = model, sheet, power_w, jobs, progress
+        nx, ny, nz = sheet.nx, sheet.ny, sheet.nz
+        # a block takes stride k when every node its points interpolate between (k beyond the block on each
+        # side) is at least k x spacing / H_NODE_SCALE from every wire, at every height
+        iy, ix = np.divmod(np.arange(nx * ny), nx)
+        d = wire_distance_m(model, sheet.points(iy, ix)).reshape(ny, nx, nz).min(axis=2)
+        nby, nbx = -(-ny // H_BLOCK), -(-nx // H_BLOCK)
+        s = np.ones((nby, nbx), int)
+        for k in H_STRIDES[1:]:
+            near = ndimage.minimum_filter(d, size=2 * k + 1, mode="nearest")
+            block = np.array([[near[by * H_BLOCK: (by + 1) * H_BLOCK, bx * H_BLOCK: (bx + 1) * H_BLOCK].min()
+                               for bx in range(nbx)] for by in range(nby)])
+            reach = np.minimum(H_NODE_SCALE * block, H_NODE_WAVELENGTHS * model.wavelength_m)
+            s[k * sheet.spacing_m <= reach] = k
+        self.stride = s
+        self._e: dict[int, np.ndarray] = {}  # node (iy * nx + ix) -> rms E (nz, 3)
+        self._h: dict[int, np.ndarray] = {}  # ... -> rms H (nz, 3)
+        self.node_columns = 0
+        self.e_columns = 0
+        self.solution: Solution | None = None
+
+    def _nodes(self, keys: np.ndarray, reference: np.ndarray) -> None:
+        """Evaluate the nodes ``keys`` not yet known; ``reference`` marks those to take the default stencil."""
+        nx, nz = self.sheet.nx, self.sheet.nz
+        keys, inverse = np.unique(keys, return_inverse=True)
+        ref = np.zeros(len(keys), bool)
+        np.logical_or.at(ref, inverse, reference)
+        new = ~np.isin(keys, np.fromiter(self._h.keys(), int, len(self._h)))
+        keys, ref = keys[new], ref[new]
+        if not len(keys):
+            return
+        iy, ix = np.divmod(keys, nx)
+
+        def curl(sel: np.ndarray, step_m: float, method: str = "curl") -> tuple[np.ndarray, np.ndarray]:
+            nf = near_fields(self.model, self.sheet.where(iy[sel], ix[sel]), self.power_w, jobs=self.jobs,
+                             h_method=method, step_m=step_m, progress=self.progress)
+            self.solution = nf.solution
+            return nf.e_v_per_m.reshape(len(sel), nz, 3), nf.h_a_per_m.reshape(len(sel), nz, 3)
+
+        # a node between nodes stands for its neighbourhood: a Sommerfeld step inside its stencil (a spike) must
+        # not spread; such a node is found by its one-sided halves and takes the robust curl (median slopes)
+        e, h = np.empty((len(keys), nz, 3), complex), np.empty((len(keys), nz, 3), complex)
+        for method in ("curl", "checked"):
+            sel = np.flatnonzero(ref if method == "curl" else ~ref)
+            if len(sel):
+                e[sel], h[sel] = curl(sel, CURL_STEP_M, method)
+        for k, ev, hv in zip(keys, e, h, strict=True):
+            self._e[int(k)], self._h[int(k)] = ev, hv
+        self.node_columns += len(keys)
+
+    def fields(self, iy: np.ndarray, ix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """rms complex E and H, each (len(iy), nz, 3) [V/m, A/m], at plan points (iy, ix) of the lattice;
+        NaN where masked."""
+        nx = self.sheet.nx
+        iy, ix = np.asarray(iy, int).ravel(), np.asarray(ix, int).ravel()
+        order = np.argsort(iy * nx + ix, kind="stable")  # by row, then column: a row's columns share NEC cards
+        e, h = self._fields(iy[order], ix[order])
+        back = np.empty_like(order)
+        back[order] = np.arange(len(order))
+        return e[back], h[back]
+
+    def _fields(self, iy: np.ndarray, ix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        nx, ny, nz = self.sheet.nx, self.sheet.ny, self.sheet.nz
+        if not len(iy):
+            return np.zeros((0, nz, 3), complex), np.zeros((0, nz, 3), complex)
+        s = self.stride[iy // H_BLOCK, ix // H_BLOCK]
+        ky, wy, py, ty = (np.empty((len(iy), 4), int), np.empty((len(iy), 4)), np.empty((len(iy), 2), int), np.empty(len(iy)))
+        kx, wx, px, tx = (np.empty((len(iy), 4), int), np.empty((len(iy), 4)), np.empty((len(iy), 2), int), np.empty(len(iy)))
+        for st in np.unique(s):
+            on = s == st
+            ky[on], wy[on], py[on], ty[on] = (a[iy[on]] for a in _axis_table(ny, int(st)))
+            kx[on], wx[on], px[on], tx[on] = (a[ix[on]] for a in _axis_table(nx, int(st)))
+        own = ((wy[:, 0] == 1.0) & (ky[:, 0] == iy) & (wx[:, 0] == 1.0) & (kx[:, 0] == ix)) | (s == 1)
+        rest = np.flatnonzero(~own)
+        terms = [(a, b) for a in range(4) for b in range(4)]
+        keys = [(ky[rest, a] * nx + kx[rest, b])[wy[rest, a] * wx[rest, b] != 0] for a, b in terms]
+        self._nodes(np.concatenate([*keys, (iy * nx + ix)[own]]),
+                    np.concatenate([np.zeros(sum(len(k) for k in keys), bool), (s == 1)[own]]))
+        e = np.empty((len(iy), nz, 3), complex)
+        h = np.empty((len(iy), nz, 3), complex)
+        if len(rest):
+            nf = near_fields(self.model, self.sheet.where(iy[rest], ix[rest]), self.power_w, jobs=self.jobs,
+                             h_method="e-only", progress=self.progress)
+            e[rest] = nf.e_v_per_m.reshape(len(rest), nz, 3)
+            self.e_columns += len(rest)
+            self.solution = nf.solution
+
+            def node(k: np.ndarray) -> np.ndarray:
+                return np.stack([self._h[int(v)] for v in k])
+
+            acc = np.zeros((len(rest), nz, 3), complex)
+            for a, b in terms:
+                w = wy[rest, a] * wx[rest, b]
+                on = w != 0
+                if on.any():
+                    acc[on] += w[on, None, None] * node(ky[rest, a][on] * nx + kx[rest, b][on])
+            h[rest] = acc
+        for k in np.flatnonzero(own):
+            key = int(iy[k] * nx + ix[k])
+            e[k], h[k] = self._e[key], self._h[key]
+        # a point whose interpolation met a masked node: a node of its own
+        lost = np.flatnonzero(np.isfinite(e).all(axis=(1, 2)) & ~np.isfinite(h).all(axis=(1, 2)))
+        if len(lost):
+            keys_ = iy[lost] * nx + ix[lost]
+            self._nodes(keys_, np.ones(len(lost), bool))
+            for k, key in zip(lost, keys_, strict=True):
+                e[k], h[k] = self._e[int(key)], self._h[int(key)]
+        return e, h
 
 
 def rms_magnitude(v: np.ndarray) -> np.ndarray:

@@ -186,7 +186,9 @@ def _scales(site: Site, pl: assess.Plan, trial: Site, antenna: str, t, idx: np.n
         lat = engine.Lattice((ox0 * d, oy0 * d, lv.floor_m + body[0]),
                              (d, d, float(body[1] - body[0]) if len(body) > 1 else 1.0),
                              (ox1 - ox0 + 1, oy1 - oy0 + 1, len(body)))
-        nf = engine.near_fields(model, lat, t.envelope_power_w, jobs=workers)
+        # H from curl E at nodes where it is smooth, as an assessment takes it (engine.SampledH)
+        nf = engine.near_fields(model, lat, t.envelope_power_w, jobs=workers,
+                                h_method="sampled" if engine.samples_h(model) else None)
         nxo, nyo, nz = lat.shape
         e = engine.rms_magnitude(nf.e_v_per_m).reshape(nz, nyo, nxo)
         h = engine.rms_magnitude(nf.h_a_per_m).reshape(nz, nyo, nxo)

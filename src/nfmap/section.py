@@ -136,9 +136,19 @@ def _adaptive_ratio(site, t, model, feed_m, origin, u, s, z, spacing_m, workers)
     def where(iz, i_s):
         return np.column_stack([origin[0] + s[i_s] * u[0], origin[1] + s[i_s] * u[1], z[iz]])
 
+    # over a finite ground H comes from curl E at nodes, interpolated where it is smooth (engine.SampledH)
+    dz = float(z[1] - z[0]) if len(z) > 1 else 1.0
+    sheet = engine.Sheet((origin[0] + s[0] * u[0], origin[1] + s[0] * u[1], float(z[0])),
+                         (spacing_m * u[0], spacing_m * u[1], 0.0), (0.0, 0.0, dz), len(s), len(z))
+    sampler = engine.SampledH(model, sheet, t.envelope_power_w, workers) if engine.samples_h(model) else None
+
     def evaluate(iz, i_s):
-        nf = engine.near_fields(model, where(iz, i_s), t.envelope_power_w, jobs=workers)
-        return {"e": engine.rms_magnitude(nf.e_v_per_m), "h": engine.rms_magnitude(nf.h_a_per_m)}
+        if sampler is not None:
+            e, h = (v[:, 0] for v in sampler.fields(iz, i_s))
+        else:
+            nf = engine.near_fields(model, where(iz, i_s), t.envelope_power_w, jobs=workers)
+            e, h = nf.e_v_per_m, nf.h_a_per_m
+        return {"e": engine.rms_magnitude(e), "h": engine.rms_magnitude(h)}
 
     def ratio(v, iz, i_s):
         return _worst(site, t, v["e"], v["h"])
