@@ -707,33 +707,28 @@ H_STEADY = 0.01  # a node between nodes whose central H may be off by more than 
 
 
 @functools.lru_cache(maxsize=64)
-def _axis_table(n: int, s: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+def _axis_table(n: int, s: int) -> tuple[np.ndarray, np.ndarray]:
     """Interpolation along one axis of ``n`` points with nodes at the multiples of ``s`` and at n - 1.
 
-    Returns, for every index i: the four nodes nearest i that bracket it (fewer on a short axis: repeated with
-    weight 0) and their cubic Lagrange weights (``idx``, ``w``, each (n, 4)), and the bracketing pair with
-    linear weights (``pair`` (n, 2), ``t`` (n,)). A node is its own only node (weight 1).
+    Returns, for every index i, the four nodes nearest i that bracket it (fewer on a short axis: repeated with
+    weight 0) and their cubic Lagrange weights (``idx``, ``w``, each (n, 4)). A node is its own only node
+    (weight 1).
     """
     nodes = np.array(sorted(set(range(0, n, s)) | {n - 1}))
     idx = np.zeros((n, 4), int)
     w = np.zeros((n, 4))
-    pair = np.zeros((n, 2), int)
-    t = np.zeros(n)
     for i in range(n):
         j = int(np.searchsorted(nodes, i))
         if j < len(nodes) and nodes[j] == i:
-            idx[i], w[i, 0], pair[i] = i, 1.0, i
+            idx[i], w[i, 0] = i, 1.0
             continue
-        lo, hi = nodes[j - 1], nodes[j]
-        pair[i], t[i] = (lo, hi), (i - lo) / (hi - lo)
         start = min(max(j - 2, 0), max(len(nodes) - 4, 0))
         use = nodes[start: start + 4]
         for k, a in enumerate(use):
-            others = [b for b in use if b != a]
-            w[i, k] = np.prod([(i - b) / (a - b) for b in others])
+            w[i, k] = np.prod([(i - b) / (a - b) for b in use if b != a])
             idx[i, k] = a
         idx[i, len(use):] = use[-1]
-    return idx, w, pair, t
+    return idx, w
 
 
 @dataclass(frozen=True)
@@ -866,18 +861,19 @@ class SampledH:
         if not len(iy):
             return np.zeros((0, nz, 3), complex), np.zeros((0, nz, 3), complex)
         s = self.stride[iy // H_BLOCK, ix // H_BLOCK]
-        ky, wy, py, ty = (np.empty((len(iy), 4), int), np.empty((len(iy), 4)), np.empty((len(iy), 2), int), np.empty(len(iy)))
-        kx, wx, px, tx = (np.empty((len(iy), 4), int), np.empty((len(iy), 4)), np.empty((len(iy), 2), int), np.empty(len(iy)))
+        ky, wy = np.empty((len(iy), 4), int), np.empty((len(iy), 4))
+        kx, wx = np.empty((len(iy), 4), int), np.empty((len(iy), 4))
         for st in np.unique(s):
             on = s == st
-            ky[on], wy[on], py[on], ty[on] = (a[iy[on]] for a in _axis_table(ny, int(st)))
-            kx[on], wx[on], px[on], tx[on] = (a[ix[on]] for a in _axis_table(nx, int(st)))
+            ky[on], wy[on] = (a[iy[on]] for a in _axis_table(ny, int(st)))
+            kx[on], wx[on] = (a[ix[on]] for a in _axis_table(nx, int(st)))
         own = ((wy[:, 0] == 1.0) & (ky[:, 0] == iy) & (wx[:, 0] == 1.0) & (kx[:, 0] == ix)) | (s == 1)
-        rest = np.flatnonzero(~own)
         terms = [(a, b) for a in range(4) for b in range(4)]
-        keys = [(ky[rest, a] * nx + kx[rest, b])[wy[rest, a] * wx[rest, b] != 0] for a, b in terms]
-        self._nodes(np.concatenate([*keys, (iy * nx + ix)[own]]),
-                    np.concatenate([np.zeros(sum(len(k) for k in keys), bool), (s == 1)[own]]))
+        need = np.stack([np.where(wy[:, a] * wx[:, b] != 0, ky[:, a] * nx + kx[:, b], -1) for a, b in terms], axis=1)
+        rest = np.flatnonzero(~own)
+        keys = need[rest][need[rest] >= 0]
+        self._nodes(np.concatenate([keys, (iy * nx + ix)[own]]),
+                    np.concatenate([np.zeros(len(keys), bool), (s == 1)[own]]))
         e = np.empty((len(iy), nz, 3), complex)
         h = np.empty((len(iy), nz, 3), complex)
         if len(rest):
