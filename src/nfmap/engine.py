@@ -29,13 +29,14 @@ reference stays.
 H for about the cost of E
 -------------------------
 Six E evaluations a point make H the whole cost of an assessment. :class:`SampledH` computes the
-reference only at nodes: every point near a wire, every s-th point (s = 2, 4, 8) where the nearest
-wire is far compared with s spacings and the wavelength; between nodes E is computed and |H| is
-interpolated by cubic Lagrange polynomials on the nodes' magnitudes. Against the reference, at points
-where it is steady, on a 0.3 m lattice around each of ``benchmarks/engine.py``'s antennas: within
-1.6 % everywhere (0.5 % at the 99th percentile), at 1.2-1.9 E evaluations a point for a dipole, an
-end-fed wire and a beam, 4.5 for a ground-mounted vertical whose radials run under the whole lattice
-(there every point is near a wire and is a node).
+reference at every point only near the wires; elsewhere at nodes every s-th point (s = 2, 4, 8, by the
+distance to the wires and at most an eighth of a wavelength apart), checked for a Sommerfeld step inside
+the stencil (then read by the median of slopes, which a step cannot move), and interpolates H's
+components between nodes by cubic Lagrange polynomials; E is computed at every point. Against the
+reference where it is steady, on a 0.3 m lattice (30 m square, 9 heights) around each of
+``benchmarks/engine.py``'s antennas: within 1.2 % everywhere, at 1.25 (dipole at 10 m), 1.5 (beam at
+12 m), 1.75 (end-fed wire) and 2.9 (ground-mounted vertical, radials across the lattice) E evaluations a
+point; within 2 % on every example wherever the ratio is 0.05 or more (``tests/engine/test_sampled_h.py``).
 
 References
 ----------
@@ -776,20 +777,24 @@ class SampledH:
 
     The sheet is cut into blocks of ``H_BLOCK`` x ``H_BLOCK`` columns. A block takes the largest stride s of
     ``H_STRIDES`` for which s x spacing <= ``H_NODE_SCALE`` x d and <= ``H_NODE_WAVELENGTHS`` wavelengths,
-    d the smallest distance to a wire over the block widened by s columns on each side (every node its
-    points interpolate from), at every height. Its nodes are the columns at multiples of s (global indices,
-    so that blocks share them, and the last column). At a node E and H come from curl E (:func:`near_fields`,
-    "curl"). Between nodes E is computed (one E evaluation) and |H| is interpolated, height by height, by
-    cubic Lagrange polynomials in both directions on the four nearest nodes (three or two at a short axis);
-    the magnitude is interpolated as such (it is what is judged: a rotating phasor's interpolated vector would
-    read low), the direction bilinearly between the bracketing nodes. Near wires s = 1: every column is a
-    node and H is the reference (curl E with the default stencil). Nodes between nodes use a wider stencil
-    (``H_NODE_STEP`` x their distance to the wires, at most ``H_NODE_STEP_MAX_M``): it dilutes NEC's
-    Sommerfeld steps, and its truncation error is below 0.3 % at 2 m. A column whose interpolation meets a
-    masked node is a node of its own. Nodes are kept between calls, so an adaptive lattice asking round
-    after round pays for each node once.
+    d the smallest distance to a wire over the block widened by s columns on each side (the nodes its points
+    interpolate from), at every height. Its nodes are the columns at multiples of s (global indices, so that
+    blocks share them) and the last column.
 
-    Accuracy against the reference: the module docstring, ``benchmarks/engine.py`` and the tests.
+    - s = 1, near wires: every column is a node, E and H the reference (curl E, :func:`near_fields` "curl").
+    - A node between nodes is "checked": E at the node itself too, and where the one-sided halves of its
+      stencil disagree (a Sommerfeld step inside it, which would spread as a spike over its neighbourhood)
+      H is the "robust" curl, the median of five slopes along each axis.
+    - Between nodes E is computed (one E evaluation) and H's complex components are interpolated, height by
+      height, by cubic Lagrange polynomials on the four nearest nodes in each direction (:func:`_axis_table`).
+      The components, not |H|: the magnitude has a kink at a null of the field (measured: |H| interpolated
+      read 16 times the reference on a vertical's axis); the eighth-wavelength limit keeps the phase's turn
+      between nodes within what a cubic follows (error (k h)^4 x 9/384: 0.9 % at lambda/8).
+    - A column whose interpolation meets a masked node is a node of its own.
+
+    Nodes are kept between calls, so an adaptive lattice asking round after round pays for each node once.
+    Accuracy against the reference: the module docstring, ``benchmarks/engine.py`` and
+    ``tests/engine/test_sampled_h.py``.
     """
 
     def __init__(self, model: Model, sheet: Sheet | Lattice, power_w: float, jobs: int | Workers = 1,
@@ -897,12 +902,14 @@ class SampledH:
             key = int(iy[k] * nx + ix[k])
             e[k], h[k] = self._e[key], self._h[key]
         # a point whose interpolation met a masked node: a node of its own
-        lost = np.flatnonzero(np.isfinite(e).all(axis=(1, 2)) & ~np.isfinite(h).all(axis=(1, 2)))
+        live = np.isfinite(e).all(axis=2)
+        lost = np.flatnonzero((live & ~np.isfinite(h).all(axis=2)).any(axis=1))
         if len(lost):
             keys_ = iy[lost] * nx + ix[lost]
             self._nodes(keys_, np.ones(len(lost), bool))
             for k, key in zip(lost, keys_, strict=True):
                 e[k], h[k] = self._e[int(key)], self._h[int(key)]
+        h[~np.isfinite(e).all(axis=2)] = np.nan  # masked, as E
         return e, h
 
 

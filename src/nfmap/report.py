@@ -392,9 +392,11 @@ def _assumptions(a) -> list[str]:
         "because NEC-2's near-H routine uses the reflection-coefficient approximation for the ground term. NEC-2's "
         "Sommerfeld interpolation steps E by up to about 1 % between its cells; where the 2 cm stencil straddles "
         "a step, H shows an isolated spike (a speck on a map, reading high or low)."
-        + (" Away from the wires H is computed this way at nodes (every 2nd to 8th lattice point, nearer where a wire "
-           "is nearer, and within a quarter wavelength) and its magnitude interpolated between them by cubic "
-           "polynomials; E is computed at every point. Measured against H computed at every point: within 2 %."
+        + (" Within a few metres of every wire H is computed so at every point; farther out at nodes (every 2nd to "
+           "8th lattice point, closer where a wire is nearer, at most an eighth of a wavelength apart), each checked "
+           "for a step inside its stencil and then read by a step-proof one, and interpolated between them by cubic "
+           "polynomials; E is computed at every point. Against H computed at every point: within 2 % wherever the "
+           "ratio is 0.05 or more (tested on the examples; --exhaustive computes every point)."
            if a.h_method == "sampled" else "")
         if a.h_method in ("curl", "sampled") else "H is NEC's near-H field (exact for free space and perfect ground).",
         "Masked: a plan point whose body line comes within the exclusion distance of a wire (10 radii or half a "
