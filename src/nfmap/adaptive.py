@@ -57,11 +57,14 @@ def stride_for(spacing_m: float) -> int:
     return max(2, int(round(COARSE_M / spacing_m)))
 
 
-def settle_worst(got: Refined, evaluate, ratio, labels: np.ndarray, per_round: int = 4, rounds: int = 4) -> Refined:
+def settle_worst(got: Refined, evaluate, ratio, labels: np.ndarray, per_round: int = 4, rounds: int = 4,
+                 final: np.ndarray | None = None) -> Refined:
     """Evaluate each labelled region's worst points until its worst is an evaluated point, never an
     interpolated one (``labels``: an int map, -2 outside every region). At most ``rounds`` rounds of
-    ``per_round`` points a region; the filled values are updated in place."""
-    values, done = got.values, got.evaluated.copy()
+    ``per_round`` points a region; the filled values are updated in place. ``final``: the points whose values
+    are final (default: those evaluated), when an evaluation can itself hold interpolated parts."""
+    values = got.values
+    done = (got.evaluated if final is None else final).copy()
     iy_all, ix_all = np.indices(done.shape)
     for _ in range(rounds):
         r = ratio({k: v.ravel() for k, v in values.items()}, iy_all.ravel(), ix_all.ravel()).reshape(done.shape)
@@ -84,7 +87,8 @@ def settle_worst(got: Refined, evaluate, ratio, labels: np.ndarray, per_round: i
         for name, v in new.items():
             values[name][iy, ix] = v
         done[iy, ix] = True
-    return Refined(values, done, int(done.sum()))
+    evaluated = got.evaluated | done
+    return Refined(values, evaluated, int(evaluated.sum()))
 
 
 def inverse_square_trend(distance_m: np.ndarray, floor_m: float) -> np.ndarray:

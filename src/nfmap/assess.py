@@ -641,10 +641,12 @@ def _adaptive_level(site: Site, pl: Plan, lv: Level, model: engine.Model, t, wor
                                                     (pl.spacing_m, pl.spacing_m, dz), (len(xs), len(ys), len(heights))),
                               t.envelope_power_w, workers, progress) if engine.samples_h(model) else None
 
-    def evaluate(iy: np.ndarray, ix: np.ndarray) -> dict[str, np.ndarray]:
+    def evaluate(iy: np.ndarray, ix: np.ndarray, exact: bool = False) -> dict[str, np.ndarray]:
         if sampler is not None:
-            e_c, h_c = sampler.fields(iy, ix)
+            e_c, h_c = sampler.fields(iy, ix, exact)
             sol[:] = sol or [sampler.solution]
+            # interpolated H judged at the top of its error bound: it never reads below the reference's
+            h_c = h_c * np.where(sampler.computed(iy, ix), 1.0, 1.0 + engine.H_BOUND)[:, None, None]
         else:
             cols = engine.Columns(np.column_stack([xs[ix], ys[iy]]), float(heights[0]), dz, len(heights), pl.spacing_m)
             nf = engine.near_fields(model, cols, t.envelope_power_w, jobs=workers, progress=progress)
@@ -675,9 +677,14 @@ def _adaptive_level(site: Site, pl: Plan, lv: Level, model: engine.Model, t, wor
                                           pl.spacing_m)
     got = adaptive.refine(xx.shape, evaluate, ratio, adaptive.LEVELS, stride, near.reshape(xx.shape),
                           _edges(site, lv, xs, ys), trend)
-    # each area's worst (and the ground outside every area) at a point NEC computed
+    # each area's worst (and the ground outside every area) at a point NEC computed, H too: an interpolated point
+    # reads at the top of its bound, so no point left interpolated can be worse than the worst computed one
     labels = np.where(lv.place[lv.window], lv.area_index[lv.window], -2)
-    got = adaptive.settle_worst(got, evaluate, ratio, labels)
+    final = None
+    if sampler is not None:
+        iy_all, ix_all = np.indices(xx.shape)
+        final = sampler.computed(iy_all.ravel(), ix_all.ravel()).reshape(xx.shape)
+    got = adaptive.settle_worst(got, lambda iy, ix: evaluate(iy, ix, exact=True), ratio, labels, final=final)
     return tuple(got.values[k] for k in FIELDS), (sol[0] if sol else None), got.plan_points * len(heights)
 
 

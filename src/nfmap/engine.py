@@ -703,6 +703,7 @@ H_BLOCK = 4  # plan points per block side; a block's H nodes are every s-th poin
 H_STRIDES = (1, 2, 4, 8)
 H_NODE_SCALE = 0.5  # node spacing <= this times the distance from the block to the nearest wire ...
 H_NODE_WAVELENGTHS = 0.125  # ... and <= this many wavelengths
+H_BOUND = 0.02  # |H| between nodes is within this share of the reference (measured and tested; README)
 H_STEADY = 0.01  # a node between nodes whose central H may be off by more than this share (its one-sided halves
 # differ by twice it) takes the robust curl
 
@@ -850,18 +851,23 @@ class SampledH:
             self._e[int(k)], self._h[int(k)] = ev, hv
         self.node_columns += len(keys)
 
-    def fields(self, iy: np.ndarray, ix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """rms complex E and H, each (len(iy), nz, 3) [V/m, A/m], at plan points (iy, ix) of the lattice;
-        NaN where masked."""
+    def fields(self, iy: np.ndarray, ix: np.ndarray, exact: bool = False) -> tuple[np.ndarray, np.ndarray]:
+        """rms complex E and H, each (len(iy), nz, 3) [V/m, A/m], at plan points (iy, ix) of the sheet;
+        NaN where masked. ``exact``: every point a node (H computed there, not interpolated)."""
         nx = self.sheet.nx
         iy, ix = np.asarray(iy, int).ravel(), np.asarray(ix, int).ravel()
         order = np.argsort(iy * nx + ix, kind="stable")  # by row, then column: a row's columns share NEC cards
-        e, h = self._fields(iy[order], ix[order])
+        e, h = self._fields(iy[order], ix[order], exact)
         back = np.empty_like(order)
         back[order] = np.arange(len(order))
         return e[back], h[back]
 
-    def _fields(self, iy: np.ndarray, ix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    def computed(self, iy: np.ndarray, ix: np.ndarray) -> np.ndarray:
+        """True where H at plan point (iy, ix) was computed (a node), not interpolated."""
+        keys = np.asarray(iy, int) * self.sheet.nx + np.asarray(ix, int)
+        return np.isin(keys, np.fromiter(self._h.keys(), int, len(self._h)))
+
+    def _fields(self, iy: np.ndarray, ix: np.ndarray, exact: bool) -> tuple[np.ndarray, np.ndarray]:
         nx, ny, nz = self.sheet.nx, self.sheet.ny, self.sheet.nz
         if not len(iy):
             return np.zeros((0, nz, 3), complex), np.zeros((0, nz, 3), complex)
@@ -872,7 +878,7 @@ class SampledH:
             on = s == st
             ky[on], wy[on] = (a[iy[on]] for a in _axis_table(ny, int(st)))
             kx[on], wx[on] = (a[ix[on]] for a in _axis_table(nx, int(st)))
-        own = ((wy[:, 0] == 1.0) & (ky[:, 0] == iy) & (wx[:, 0] == 1.0) & (kx[:, 0] == ix)) | (s == 1)
+        own = ((wy[:, 0] == 1.0) & (ky[:, 0] == iy) & (wx[:, 0] == 1.0) & (kx[:, 0] == ix)) | (s == 1) | exact
         terms = [(a, b) for a in range(4) for b in range(4)]
         need = np.stack([np.where(wy[:, a] * wx[:, b] != 0, ky[:, a] * nx + kx[:, b], -1) for a, b in terms], axis=1)
         rest = np.flatnonzero(~own)
