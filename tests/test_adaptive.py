@@ -3,8 +3,9 @@
 The synthetic checks use closed forms (the inverse-square fall-off of a point source's power
 density, common practice, and a standing-wave ripple) so that the exact answer is known at every
 point. The examples are compared with ``exhaustive=True`` (slow): every area's verdict the same, its
-worst ratio within 2 % (or ``adaptive.FLOOR``), the power ceilings within 2 %, the same crossings,
-the limit and 0.5 contours within half a spacing (Hausdorff distance). An exhaustive worst point that
+worst ratio and the power ceilings within 2 % (or ``adaptive.FLOOR``; the adaptive reading higher by at most
+the margin an interpolated H is judged with), the same crossings, the limit and 0.5 contours within half a
+spacing (Hausdorff distance). An exhaustive worst point that
 is an isolated spike of the reference H (see ``nfmap.engine``) is not held against the adaptive one.
 """
 
@@ -128,9 +129,13 @@ def test_adaptive_matches_exhaustive_on_the_examples(name):
             assert aa.over == ae.over, (ta.name, aa.name)
             if adaptive.isolated_h_spike(e.plan, te, ae):
                 continue  # the exhaustive worst is an artefact of the reference H (module docstring)
-            assert (aa.max_ratio or 0) == pytest.approx(ae.max_ratio or 0, rel=0.02, abs=adaptive.FLOOR), (ta.name, aa.name)
+            # never more than 2 % lower; higher by at most the margin an interpolated H is judged with
+            # (engine.H_BOUND, on a power ratio twice) where an area's worst stays interpolated
+            ra, re = aa.max_ratio or 0, ae.max_ratio or 0
+            assert re * 0.98 - adaptive.FLOOR <= ra <= re * 1.02 * (1 + engine.H_BOUND) ** 2 + adaptive.FLOOR, (ta.name, aa.name)
         if te.power_ceiling_w is not None:
-            assert ta.power_ceiling_w == pytest.approx(te.power_ceiling_w, rel=0.02)
+            low = te.power_ceiling_w / (1.02 * (1 + engine.H_BOUND) ** 2)
+            assert low <= ta.power_ceiling_w <= te.power_ceiling_w * 1.02, ta.name
         assert [(c.line, c.masked) for c in ta.crossings] == [(c.line, c.masked) for c in te.crossings]
         for level in (0.5, 1.0):
             ca, ce = _contour(a.plan, ta.ratio, level), _contour(e.plan, te.ratio, level)

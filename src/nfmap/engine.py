@@ -561,7 +561,8 @@ class Workers:
 
 
 _SOLVED: dict = {}  # per process: the last model solved, its context and card counter (points and columns)
-CACHED_POINTS_MAX = 200_000  # a cached context keeps every pattern it computed: rebuilt beyond this
+CACHED_POINTS_MAX = 200_000  # a cached context keeps every pattern it computed: rebuilt beyond this many points
+CACHED_CARDS_MAX = 2_000  # ... or cards (PyNEC's pattern lookup slows as they pile up: 2.3 ms a card at 10^5)
 
 
 def _task(model: Model, where, h_method: str, step_m: float):
@@ -571,7 +572,7 @@ def _task(model: Model, where, h_method: str, step_m: float):
     else:
         # an adaptive lattice or a section asks the same model many times for few points: solve it once
         entry = _SOLVED.get("model")
-        if entry is None or entry[0] != model or entry[3][0] > CACHED_POINTS_MAX:
+        if entry is None or entry[0] != model or entry[3][0] > CACHED_POINTS_MAX or entry[2].n > CACHED_CARDS_MAX:
             ctx, sol = _build(model)
             entry = (model, sol, _Counter(ctx), [0])
             _SOLVED["model"] = entry
