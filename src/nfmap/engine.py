@@ -820,7 +820,6 @@ class SampledH:
         self._e: dict[int, np.ndarray] = {}  # node (iy * nx + ix) -> rms E (nz, 3)
         self._h: dict[int, np.ndarray] = {}  # ... -> rms H (nz, 3)
         self.node_columns = 0
-        self.e_columns = 0
         self.solution: Solution | None = None
 
     def _nodes(self, keys: np.ndarray, reference: np.ndarray) -> None:
@@ -892,7 +891,6 @@ class SampledH:
             nf = near_fields(self.model, self.sheet.where(iy[rest], ix[rest]), self.power_w, jobs=self.jobs,
                              h_method="e-only", progress=self.progress)
             e[rest] = nf.e_v_per_m.reshape(len(rest), nz, 3)
-            self.e_columns += len(rest)
             self.solution = nf.solution
 
             def node(k: np.ndarray) -> np.ndarray:
