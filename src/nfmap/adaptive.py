@@ -4,13 +4,15 @@ A level's plan lattice (spacing d) is first evaluated on a coarse sub-lattice (e
 row and column, and the last ones). Each coarse cell is then refined to the full spacing (every
 plan point inside it evaluated) when
 
-* a corner is masked (too close to a wire), or it holds plan points within ``WIRE_REACH_M`` (or two
-  spacings) of any wire (``hard``: the field changes on the scale of the spacing there);
+* a corner is masked (too close to a wire), or it holds ``hard`` points (the caller's choice: plan points within
+  ``WIRE_REACH_M``, or two spacings, of any wire where people are judged; the field changes on the scale of the
+  spacing there);
 * its corners' ratios straddle a level that is drawn or judged (``levels``);
 * it holds an area edge, a line or a floor edge (``soft``) and its ratio reaches ``EDGE_FLOOR``;
 * the interpolation misses: the centre of every cell not refined is evaluated and compared with
   the value interpolated from the corners; more than ``TOLERANCE`` of the ratio (plus
-  ``FLOOR``) refines the cell; and after refinement a cell whose evaluated boundary points
+  ``FLOOR``; ``DRAWN_TOLERANCE`` in a cell that holds no judged point, whose ratios are only drawn in bands
+  and contours, which the level rule resolves) refines the cell; and after refinement a cell whose evaluated boundary points
   (shared with refined neighbours) straddle a level or miss the interpolation is refined too.
 
 Each area's worst point is then made an evaluated one (``settle_worst``): the highest interpolated
@@ -34,6 +36,7 @@ import numpy as np
 COARSE_M = 4.0  # the coarse spacing aimed at [m]
 TOLERANCE = 0.005  # interpolated ratio within 0.5 % of the evaluated one at the centres ...
 FLOOR = 2e-4  # ... plus this (2 % of a ratio of 0.01)
+DRAWN_TOLERANCE = 0.05  # ... or 5 % in cells where nothing is judged (only drawn: a not-accessible area, a section)
 EDGE_FLOOR = 0.05  # area, line and floor edges are refined where the ratio reaches this
 MAX_ROUNDS = 4
 WIRE_REACH_M = 1.0  # plan points this close to a wire (or two spacings, if more) are evaluated in full
@@ -57,16 +60,17 @@ def stride_for(spacing_m: float) -> int:
     return max(2, int(round(COARSE_M / spacing_m)))
 
 
-def settle_worst(got: Refined, evaluate, ratio, labels: np.ndarray, per_round: int = 4, rounds: int = 4,
+def settle_worst(got: Refined, evaluate, ratio, labels: np.ndarray, per_round: int = 8, rounds: int = 6,
                  final: np.ndarray | None = None) -> Refined:
     """Evaluate each labelled region's worst points until its worst is an evaluated point, never an
-    interpolated one (``labels``: an int map, -2 outside every region). At most ``rounds`` rounds of
-    ``per_round`` points a region; the filled values are updated in place. ``final``: the points whose values
-    are final (default: those evaluated), when an evaluation can itself hold interpolated parts."""
+    interpolated one (``labels``: an int map, -2 outside every region). Each round evaluates a region's
+    highest points not yet final that read above its highest final one, at most ``per_round`` of them, doubled
+    every round, for at most ``rounds`` rounds; the filled values are updated in place. ``final``: the points whose
+    values are final (default: those evaluated), when an evaluation can itself hold interpolated parts."""
     values = got.values
     done = (got.evaluated if final is None else final).copy()
     iy_all, ix_all = np.indices(done.shape)
-    for _ in range(rounds):
+    for k in range(rounds):
         r = ratio({k: v.ravel() for k, v in values.items()}, iy_all.ravel(), ix_all.ravel()).reshape(done.shape)
         pick_y, pick_x = [], []
         for lab in np.unique(labels[labels > -2]):
@@ -76,8 +80,10 @@ def settle_worst(got: Refined, evaluate, ratio, labels: np.ndarray, per_round: i
             worst = np.max(r[inside])
             if done[inside & (r == worst)].any():
                 continue
-            cand = np.flatnonzero((inside & ~done).ravel())
-            top = cand[np.argsort(r.ravel()[cand])[::-1][:per_round]]
+            settled = r[inside & done]
+            above = inside & ~done & (r > (settled.max() if settled.size else -np.inf))
+            cand = np.flatnonzero(above.ravel())
+            top = cand[np.argsort(r.ravel()[cand])[::-1][: per_round << k]]
             pick_y.append(top // done.shape[1])
             pick_x.append(top % done.shape[1])
         if not pick_y:
@@ -114,6 +120,7 @@ def refine(
     hard: np.ndarray | None = None,
     soft: np.ndarray | None = None,
     trend: np.ndarray | None = None,
+    judged: np.ndarray | None = None,
 ) -> Refined:
     """Evaluate a plan of ``shape`` (ny, nx) adaptively (see the module docstring).
 
@@ -131,11 +138,15 @@ def refine(
     trend : float (ny, nx)
         The expected log of the quantities' shape (e.g. -2 log of the distance to the fed wires):
         interpolation is of log(value) - trend, which varies more slowly near a source.
+    judged : bool (ny, nx)
+        Points whose ratios are judged (default: all); a cell holding none is only drawn and takes
+        ``DRAWN_TOLERANCE``.
     """
     ny, nx = shape
     trend = np.zeros(shape) if trend is None else np.asarray(trend, float)
     hard_sum = _prefix(np.zeros(shape, bool) if hard is None else hard)
     soft_sum = _prefix(np.zeros(shape, bool) if soft is None else soft)
+    judged_sum = _prefix(np.ones(shape, bool) if judged is None else judged)
     values: Values = {}
     done = np.zeros(shape, bool)
     rmap = np.full(shape, np.nan)
@@ -178,11 +189,11 @@ def refine(
                     split.append(b)
                 else:
                     check.append(b)
-            for b, miss in zip(check, _misses(values, rmap, done, check, ratio, levels, trend), strict=True):
+            for b, miss in zip(check, _misses(values, rmap, done, check, ratio, levels, trend, judged_sum), strict=True):
                 (split if miss else leaves).append(b)
             active = [c for b in split for c in _quarters(b)]
         # a leaf whose points now known (on edges shared with refined neighbours) it does not reproduce
-        reopen = [b for b, miss in zip(leaves, _misses(values, rmap, done, leaves, ratio, levels, trend), strict=True) if miss]
+        reopen = [b for b, miss in zip(leaves, _misses(values, rmap, done, leaves, ratio, levels, trend, judged_sum), strict=True) if miss]
         if not reopen:
             break
         leaves = [b for b in leaves if b not in set(reopen)]
@@ -221,9 +232,10 @@ def _decisive(r: np.ndarray, levels: tuple[float, ...]) -> bool:
     return any(lo < lv <= hi for lv in levels)
 
 
-def _misses(values: Values, rmap, done, boxes: list, ratio, levels, trend) -> list[bool]:
+def _misses(values: Values, rmap, done, boxes: list, ratio, levels, trend, judged_sum) -> list[bool]:
     """For each box: True when its evaluated points (centre, edges shared with refined neighbours) straddle
-    a level or are masked, or are not reproduced by interpolation from its corners.
+    a level or are masked, or are not reproduced by interpolation from its corners (within ``TOLERANCE``, or
+    ``DRAWN_TOLERANCE`` in a box without a judged point: ``judged_sum``, a prefix sum).
     One call of ``ratio`` for all boxes."""
     if not boxes:
         return []
@@ -244,7 +256,8 @@ def _misses(values: Values, rmap, done, boxes: list, ratio, levels, trend) -> li
         c = [np.log(np.maximum(v[yy, xx], 1e-300)) - trend[yy, xx] for yy, xx in corners]
         guess[name] = np.exp(_blend(c, ty, tx) + trend[iy, ix])
     r = rmap[iy, ix]
-    off = np.abs(ratio(guess, iy, ix) - r) > TOLERANCE * r + FLOOR
+    tol = np.array([TOLERANCE if _count(judged_sum, box) else DRAWN_TOLERANCE for box in boxes])[owner]
+    off = np.abs(ratio(guess, iy, ix) - r) > tol * r + FLOOR
     bad = np.isnan(r) | off
     n = len(boxes)
     lo = np.full(n, np.inf)

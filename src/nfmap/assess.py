@@ -390,9 +390,11 @@ def _assess_once(site: Site, workers: engine.Workers, progress, exhaustive: bool
         full = sum(lat.size for lat in lats) * sum(len(headings_for(site, t.antenna)) for t in site.transmissions)
         notes.append(
             f"Adaptive lattice: {points[0]} of {full} lattice points evaluated with NEC ({100 * points[0] / full:.0f} %): "
-            f"every cell crossed by the 0.1, 0.5 or 1 line, within {adaptive.WIRE_REACH_M:g} m of a wire or on an area "
-            "edge where the ratio reaches 0.05 in full; elsewhere interpolated from the cell's corners where that "
-            f"reproduces the evaluated centre within {100 * adaptive.TOLERANCE:g} % + {adaptive.FLOOR:g}. Each area's "
+            f"every cell crossed by the 0.1, 0.5 or 1 line, within {adaptive.WIRE_REACH_M:g} m of a wire where people "
+            "are judged, or on an area edge where the ratio reaches 0.05 in full; elsewhere interpolated from the cell's "
+            f"corners where that reproduces the evaluated centre within {100 * adaptive.TOLERANCE:g} % + "
+            f"{adaptive.FLOOR:g} ({100 * adaptive.DRAWN_TOLERANCE:g} % in not-accessible areas, whose ratios are only "
+            "drawn). Each area's "
             f"worst point is a computed one. A hot spot smaller than {adaptive.COARSE_M:g} m across and more than "
             f"{adaptive.WIRE_REACH_M:g} m from every wire could be missed; --exhaustive evaluates every point")
     comb = combined(site, pl, results)
@@ -448,7 +450,8 @@ def _ring_ratio(site: Site, workers: engine.Workers, stride: int = 1) -> float:
     px, py = xx[ring], yy[ring]
     heights = site.grid.body.heights_m()
     dz = float(heights[1] - heights[0]) if len(heights) > 1 else 1.0
-    pts = engine.Columns(np.column_stack([px, py]), float(heights[0]), dz, len(heights))  # one NEC card a column
+    # one NEC card a column, the first and last rows one card each
+    pts = engine.Columns(np.column_stack([px, py]), float(heights[0]), dz, len(heights), stride * pl.spacing_m)
     by_tx = {}
     for t in site.transmissions:
         worst = np.zeros(len(px))
@@ -645,8 +648,6 @@ def _adaptive_level(site: Site, pl: Plan, lv: Level, model: engine.Model, t, wor
         if sampler is not None:
             e_c, h_c = sampler.fields(iy, ix, exact)
             sol[:] = sol or [sampler.solution]
-            # interpolated H judged at the top of its error bound: it never reads below the reference's
-            h_c = h_c * np.where(sampler.computed(iy, ix), 1.0, 1.0 + engine.H_BOUND)[:, None, None]
         else:
             cols = engine.Columns(np.column_stack([xs[ix], ys[iy]]), float(heights[0]), dz, len(heights), pl.spacing_m)
             nf = engine.near_fields(model, cols, t.envelope_power_w, jobs=workers, progress=progress)
@@ -675,15 +676,22 @@ def _adaptive_level(site: Site, pl: Plan, lv: Level, model: engine.Model, t, wor
     feed = np.array(feed_point_m(model.structures[model.active]))
     trend = adaptive.inverse_square_trend(np.sqrt((xx - feed[0]) ** 2 + (yy - feed[1]) ** 2 + (heights.mean() - feed[2]) ** 2),
                                           pl.spacing_m)
-    got = adaptive.refine(xx.shape, evaluate, ratio, adaptive.LEVELS, stride, near.reshape(xx.shape),
-                          _edges(site, lv, xs, ys), trend)
-    # each area's worst (and the ground outside every area) at a point NEC computed, H too: an interpolated point
-    # reads at the top of its bound, so no point left interpolated can be worse than the worst computed one
+    # a wire's neighbourhood is evaluated in full where people are judged; in a not-accessible area the drawn
+    # levels and a looser interpolation check still refine (the map shows its ratios under the hatching)
+    judged = np.isin(tier, ("public", "occupational"))
+    got = adaptive.refine(xx.shape, evaluate, ratio, adaptive.LEVELS, stride, near.reshape(xx.shape) & judged,
+                          _edges(site, lv, xs, ys), trend, judged)
+    # each area's worst (and the ground outside every area) at a point NEC computed, H too: a point whose H was
+    # not computed (interpolated between nodes or between evaluated points) reads at the top of the sampled H's
+    # bound, so no point left interpolated can be worse than the worst computed one. (The margin is applied after
+    # refinement: inside it, it would read as an interpolation miss between a node and its neighbours.)
     labels = np.where(lv.place[lv.window], lv.area_index[lv.window], -2)
     final = None
     if sampler is not None:
         iy_all, ix_all = np.indices(xx.shape)
         final = sampler.computed(iy_all.ravel(), ix_all.ravel()).reshape(xx.shape)
+        for k in ("h", "h_pk"):
+            got.values[k][~final] *= 1.0 + engine.H_BOUND
     got = adaptive.settle_worst(got, lambda iy, ix: evaluate(iy, ix, exact=True), ratio, labels, final=final)
     return tuple(got.values[k] for k in FIELDS), (sol[0] if sol else None), got.plan_points * len(heights)
 

@@ -348,12 +348,26 @@ def _grid(counter: _Counter, lattice: Lattice, kind: str, name: str) -> np.ndarr
 
 
 def _points(counter: _Counter, pts: np.ndarray, kind: str, name: str) -> np.ndarray:
+    """E or H at points; points on one vertical at equal gaps (a section's columns) share one card."""
     out = np.empty((len(pts), 3), complex)
+    order = np.lexsort((pts[:, 2], pts[:, 1], pts[:, 0]))  # by x, then y, then height
+    p = pts[order]
+    k = 0
     try:
-        for k, (x, y, z) in enumerate(pts):
-            nf = counter.card(kind, (0, 1, 1, 1, float(x), float(y), float(z), 0.0, 0.0, 0.0))
-            out[k] = (nf.get_field_x()[0], nf.get_field_y()[0], nf.get_field_z()[0])
-    except (RuntimeError, AttributeError, IndexError) as err:
+        while k < len(p):
+            j = k + 1
+            same = j < len(p) and p[j, 0] == p[k, 0] and p[j, 1] == p[k, 1]
+            gap = float(p[j, 2] - p[k, 2]) if same else 0.0
+            if gap > 0:
+                while (j < len(p) and p[j, 0] == p[k, 0] and p[j, 1] == p[k, 1]
+                       and abs(p[j, 2] - p[j - 1, 2] - gap) <= 1e-9 * max(1.0, gap)):
+                    j += 1
+            x, y, z = (float(v) for v in p[k])
+            nf = counter.card(kind, (0, 1, 1, j - k, x, y, z, 0.0, 0.0, gap if j - k > 1 else 0.0))
+            out[order[k:j]] = np.column_stack([np.asarray(nf.get_field_x()), np.asarray(nf.get_field_y()),
+                                               np.asarray(nf.get_field_z())])
+            k = j
+    except (RuntimeError, AttributeError, IndexError, ValueError) as err:
         raise EngineError("near field", name, str(err) or "near-field card failed") from err
     return out
 
@@ -627,67 +641,104 @@ def near_fields(
         e, h = (v.reshape(ny, nx, nz, 3).transpose(2, 0, 1, 3).reshape(-1, 3) for v in sampler.fields(iy, ix))
         return NearField(where.points(), e, h, ~np.isfinite(e).all(axis=1), "sampled", sampler.solution or solve(model),
                          float(power_w), (f"H from curl E at {sampler.node_columns} of {nx * ny} columns",))
+    return near_fields_batch(model, [(where, h_method)], power_w, jobs, step_m, progress)[0]
+
+
+# E evaluations a point costs, by method (to hand the largest chunks out first)
+_COST = {"e-only": 1, "nh": 2, "curl": 6, "checked": 7, "robust": 18}
+
+
+def near_fields_batch(
+    model: Model,
+    requests: Sequence[tuple[Lattice | Columns | np.ndarray, str | None]],
+    power_w: float,
+    jobs: int | Workers = 1,
+    step_m: float = CURL_STEP_M,
+    progress: Callable[[int], None] | None = None,
+) -> list[NearField]:
+    """:func:`near_fields` for several (where, h_method) requests of one model at once: their chunks go to the
+    workers together, the costliest first, so that no worker waits for another between them (an adaptive
+    round asks for nodes and plain points together). Results do not depend on the batching."""
+    if not power_w > 0 or not math.isfinite(power_w):
+        raise ValueError(f"power_w must be > 0, got {power_w}")
     n_jobs = jobs.jobs if isinstance(jobs, Workers) else int(jobs)
+    plans = []
+    for where, h_method in requests:
+        h_method = h_method or default_h_method(model.ground)
+        if h_method not in H_METHODS or h_method == "sampled":
+            raise ValueError(f"h_method must be one of {', '.join(m for m in H_METHODS if m != 'sampled')}; "
+                             f"got {h_method!r}")
+        plans.append((where, h_method, *_chunked(model, where, n_jobs)))
+    tasks, owner = [], []
+    for k, (_, h_method, _, _, chunks, _) in enumerate(plans):
+        tasks += [(model, c, h_method, step_m) for c in chunks]
+        owner += [k] * len(chunks)
+    sizes = [c.size if isinstance(c, (Lattice, Columns)) else len(c) for _, c, _, _ in tasks]
+    order = sorted(range(len(tasks)), key=lambda i: -sizes[i] * _COST[tasks[i][2]])
+    results: list = [None] * len(tasks)
+    if tasks:
+        def done(k: int) -> None:
+            if progress:
+                progress(sizes[order[k]])
+
+        ordered = [tasks[i] for i in order]
+        if isinstance(jobs, Workers):
+            got = jobs.run(_task, ordered, done)
+        else:
+            with Workers(jobs if len(ordered) > 1 else 1) as pool:
+                got = pool.run(_task, ordered, done)
+        for i, r in zip(order, got, strict=True):
+            results[i] = r
+    sol = results[0][2] if tasks else solve(model)
+    out = []
+    for k, (where, h_method, pts, masked, chunks, keep) in enumerate(plans):
+        mine = [results[i] for i in range(len(tasks)) if owner[i] == k]
+        e_pk = np.full((len(pts), 3), np.nan, complex)
+        h_pk = np.full((len(pts), 3), np.nan, complex)
+        if mine:
+            e_all = np.concatenate([r[0] for r in mine])
+            h_all = np.concatenate([r[1] for r in mine])
+            if isinstance(where, Lattice):
+                # chunks split along y: reassemble in x-fastest, y, z order
+                nx, _, nz = where.shape
+                e_pk = _merge_y(e_all, chunks, nx, nz)
+                h_pk = _merge_y(h_all, chunks, nx, nz)
+            else:
+                e_pk[keep] = e_all
+                h_pk[keep] = h_all
+        scale = math.sqrt(power_w / sol.input_power_w) / math.sqrt(2.0)
+        e, h = e_pk * scale, h_pk * scale
+        e[masked] = np.nan
+        h[masked] = np.nan
+        finite = np.isfinite(e).all(axis=1) & (np.isfinite(h).all(axis=1) | (h_method == "e-only"))
+        if np.any(~finite & ~masked):
+            raise EngineError("near field", model.name, f"{int((~finite & ~masked).sum())} points gave NaN or inf")
+        out.append(NearField(pts, e, h, masked, h_method, sol, float(power_w)))
+    return out
+
+
+def _chunked(model: Model, where, n_jobs: int):
+    """The points of ``where``, their masked flags, the chunks handed to the workers and which points they hold."""
     if isinstance(where, Lattice):
         pts = where.points()
         # a multiple of the jobs, so that no worker is left alone with a last chunk (each point's field never
         # depends on the chunking)
         parts = math.ceil(where.size / LATTICE_CHUNK_POINTS)
         chunks = where.split_y(math.ceil(parts / n_jobs) * n_jobs if parts > 1 else 1)
-    elif isinstance(where, Columns):
-        pts = where.points()
-        chunks = None
-    else:
-        pts = np.asarray(where, float).reshape(-1, 3)
-        chunks = None
+        return pts, mask_points(model, pts), chunks, None
+    pts = where.points() if isinstance(where, Columns) else np.asarray(where, float).reshape(-1, 3)
     masked = mask_points(model, pts)
     # small calls (an adaptive lattice's rounds, a section) still keep every worker busy; results never depend on it
     if isinstance(where, Columns):
         live = np.flatnonzero(~masked.reshape(-1, where.nz).all(axis=1))  # columns with a point to evaluate
-        per = max(1, min(CHUNK_POINTS // where.nz, math.ceil(len(live) / (2 * n_jobs))))
+        per = max(1, min(CHUNK_POINTS // where.nz, math.ceil(len(live) / (4 * n_jobs))))
         chunks = [where.take(live[i : i + per]) for i in range(0, len(live), per)]
         keep = (live[:, None] * where.nz + np.arange(where.nz)).ravel()
-    elif chunks is None:
-        keep = np.flatnonzero(~masked)
-        per = max(1, min(CHUNK_POINTS, math.ceil(len(keep) / (2 * n_jobs))))
-        chunks = [pts[keep[i : i + per]] for i in range(0, len(keep), per)]
-    e_pk = np.full((len(pts), 3), np.nan, complex)
-    h_pk = np.full((len(pts), 3), np.nan, complex)
-    results = []
-    if not chunks:
-        sol = solve(model)
     else:
-        def done(k: int) -> None:
-            if progress:
-                c = chunks[k]
-                progress(c.size if isinstance(c, (Lattice, Columns)) else len(c))
-
-        tasks = [(model, c, h_method, step_m) for c in chunks]
-        if isinstance(jobs, Workers):
-            results = jobs.run(_task, tasks, done)
-        else:
-            with Workers(jobs if len(chunks) > 1 else 1) as pool:
-                results = pool.run(_task, tasks, done)
-    if results:
-        sol = results[0][2]
-        e_all = np.concatenate([r[0] for r in results])
-        h_all = np.concatenate([r[1] for r in results])
-        if isinstance(where, Lattice):
-            # chunks split along y: reassemble in x-fastest, y, z order
-            nx, _, nz = where.shape
-            e_pk = _merge_y(e_all, chunks, nx, nz)
-            h_pk = _merge_y(h_all, chunks, nx, nz)
-        else:
-            e_pk[keep] = e_all
-            h_pk[keep] = h_all
-    scale = math.sqrt(power_w / sol.input_power_w) / math.sqrt(2.0)
-    e, h = e_pk * scale, h_pk * scale
-    e[masked] = np.nan
-    h[masked] = np.nan
-    finite = np.isfinite(e).all(axis=1) & (np.isfinite(h).all(axis=1) | (h_method == "e-only"))
-    if np.any(~finite & ~masked):
-        raise EngineError("near field", model.name, f"{int((~finite & ~masked).sum())} points gave NaN or inf")
-    return NearField(pts, e, h, masked, h_method, sol, float(power_w))
+        keep = np.flatnonzero(~masked)
+        per = max(1, min(CHUNK_POINTS, math.ceil(len(keep) / (4 * n_jobs))))
+        chunks = [pts[keep[i : i + per]] for i in range(0, len(keep), per)]
+    return pts, masked, chunks, keep
 
 
 def _merge_y(values: np.ndarray, chunks: list[Lattice], nx: int, nz: int) -> np.ndarray:
@@ -817,39 +868,77 @@ class SampledH:
             reach = np.minimum(H_NODE_SCALE * block, H_NODE_WAVELENGTHS * model.wavelength_m)
             s[k * sheet.spacing_m <= reach] = k
         self.stride = s
+        # a node column between nodes takes curl E at every other height (and the top one) and H's components by
+        # cubic polynomials in height between them, where two height steps are within the same reach as a stride
+        plan_sheet = sheet.step_x_m[1] == 0 and sheet.step_x_m[2] == 0 and sheet.step_y_m[2] == 0
+        self._z_sparse = (plan_sheet and nz >= 4) & (
+            2 * sheet.dz_m <= np.minimum(H_NODE_SCALE * d, H_NODE_WAVELENGTHS * model.wavelength_m))
         self._e: dict[int, np.ndarray] = {}  # node (iy * nx + ix) -> rms E (nz, 3)
         self._h: dict[int, np.ndarray] = {}  # ... -> rms H (nz, 3)
+        self._full: set[int] = set()  # nodes whose H was computed at every height
         self.node_columns = 0
         self.solution: Solution | None = None
 
-    def _nodes(self, keys: np.ndarray, reference: np.ndarray) -> None:
-        """Evaluate the nodes ``keys`` not yet known; ``reference`` marks those to take the default stencil."""
+    def _nodes(self, keys: np.ndarray, reference: np.ndarray, full: np.ndarray, plain=None) -> NearField | None:
+        """Evaluate the nodes ``keys`` not yet known; ``reference`` marks those to take the default stencil,
+        ``full`` those whose H must be computed at every height (never interpolated in height).
+        ``plain``: columns (a :meth:`Sheet.where`) whose E alone is wanted, in the same batch; returns their
+        near field."""
         nx, nz = self.sheet.nx, self.sheet.nz
         keys, inverse = np.unique(keys, return_inverse=True)
         ref = np.zeros(len(keys), bool)
         np.logical_or.at(ref, inverse, reference)
-        new = ~np.isin(keys, np.fromiter(self._h.keys(), int, len(self._h)))
-        keys, ref = keys[new], ref[new]
-        if not len(keys):
-            return
+        fl = ref.copy()
+        np.logical_or.at(fl, inverse, full)
+        known = np.isin(keys, np.fromiter(self._h.keys(), int, len(self._h)))
+        whole = np.isin(keys, np.fromiter(self._full, int, len(self._full)))
+        new = ~known | (fl & ~whole)
+        keys, ref, fl = keys[new], ref[new], fl[new]
         iy, ix = np.divmod(keys, nx)
-
-        def curl(sel: np.ndarray, step_m: float, method: str = "curl") -> tuple[np.ndarray, np.ndarray]:
-            nf = near_fields(self.model, self.sheet.where(iy[sel], ix[sel]), self.power_w, jobs=self.jobs,
-                             h_method=method, step_m=step_m, progress=self.progress)
-            self.solution = nf.solution
-            return nf.e_v_per_m.reshape(len(sel), nz, 3), nf.h_a_per_m.reshape(len(sel), nz, 3)
-
+        sparse = ~fl & self._z_sparse[iy, ix]
         # a node between nodes stands for its neighbourhood: a Sommerfeld step inside its stencil (a spike) must
         # not spread; such a node is found by its one-sided halves and takes the robust curl (median slopes)
-        e, h = np.empty((len(keys), nz, 3), complex), np.empty((len(keys), nz, 3), complex)
-        for method in ("curl", "checked"):
-            sel = np.flatnonzero(ref if method == "curl" else ~ref)
-            if len(sel):
-                e[sel], h[sel] = curl(sel, CURL_STEP_M, method)
-        for k, ev, hv in zip(keys, e, h, strict=True):
+        groups = [(sel, method, rows) for method, sel, rows in (
+            ("curl", np.flatnonzero(ref), None), ("checked", np.flatnonzero(~ref & ~sparse), None),
+            ("checked", np.flatnonzero(sparse), "even"), ("checked", np.flatnonzero(sparse), "top"),
+            ("e-only", np.flatnonzero(sparse), "odd")) if len(sel)]
+        z_even = np.arange(0, nz, 2)
+        z_odd = np.arange(1, nz - 1, 2)
+        top = [nz - 1] if (nz - 1) % 2 else []
+        heights = {None: np.arange(nz), "even": z_even, "odd": z_odd, "top": np.array(top, int)}
+        groups = [g for g in groups if len(heights[g[2]])]
+        requests = []
+        for sel, method, rows in groups:
+            cols = self.sheet.where(iy[sel], ix[sel])
+            if rows is not None:
+                k = heights[rows]
+                cols = replace(cols, z0_m=cols.z0_m + k[0] * cols.dz_m, dz_m=2 * cols.dz_m, nz=len(k))
+            requests.append((cols, method))
+        if plain is not None:
+            requests.append((plain, "e-only"))
+        if not requests:
+            return None
+        got = near_fields_batch(self.model, requests, self.power_w, self.jobs, CURL_STEP_M, self.progress)
+        self.solution = got[0].solution
+        e = np.full((len(keys), nz, 3), np.nan, complex)
+        h = np.full((len(keys), nz, 3), np.nan, complex)
+        for (sel, method, rows), nf in zip(groups, got, strict=False):
+            k = heights[rows]
+            e[sel[:, None], k[None, :]] = nf.e_v_per_m.reshape(len(sel), len(k), 3)
+            if method != "e-only":
+                h[sel[:, None], k[None, :]] = nf.h_a_per_m.reshape(len(sel), len(k), 3)
+        if sparse.any():
+            # H between the computed heights (masked heights stay masked: NaN spreads to their neighbours, which
+            # are then computed in full below)
+            idx, w = _axis_table(nz, 2)
+            sp = np.flatnonzero(sparse)
+            h[sp] = np.einsum("kj,nkjc->nkc", w, h[sp][:, idx, :])
+        for k, ev, hv, f in zip(keys, e, h, ~sparse, strict=True):
             self._e[int(k)], self._h[int(k)] = ev, hv
+            if f:
+                self._full.add(int(k))
         self.node_columns += len(keys)
+        return got[-1] if plain is not None else None
 
     def fields(self, iy: np.ndarray, ix: np.ndarray, exact: bool = False) -> tuple[np.ndarray, np.ndarray]:
         """rms complex E and H, each (len(iy), nz, 3) [V/m, A/m], at plan points (iy, ix) of the sheet;
@@ -863,9 +952,9 @@ class SampledH:
         return e[back], h[back]
 
     def computed(self, iy: np.ndarray, ix: np.ndarray) -> np.ndarray:
-        """True where H at plan point (iy, ix) was computed (a node), not interpolated."""
+        """True where H at plan point (iy, ix) was computed at every height (a node), not interpolated."""
         keys = np.asarray(iy, int) * self.sheet.nx + np.asarray(ix, int)
-        return np.isin(keys, np.fromiter(self._h.keys(), int, len(self._h)))
+        return np.isin(keys, np.fromiter(self._full, int, len(self._full)))
 
     def _fields(self, iy: np.ndarray, ix: np.ndarray, exact: bool) -> tuple[np.ndarray, np.ndarray]:
         nx, ny, nz = self.sheet.nx, self.sheet.ny, self.sheet.nz
@@ -883,15 +972,15 @@ class SampledH:
         need = np.stack([np.where(wy[:, a] * wx[:, b] != 0, ky[:, a] * nx + kx[:, b], -1) for a, b in terms], axis=1)
         rest = np.flatnonzero(~own)
         keys = need[rest][need[rest] >= 0]
-        self._nodes(np.concatenate([keys, (iy * nx + ix)[own]]),
-                    np.concatenate([np.zeros(len(keys), bool), (s == 1)[own]]))
+        # the nodes and E between them in one batch
+        nf = self._nodes(np.concatenate([keys, (iy * nx + ix)[own]]),
+                         np.concatenate([np.zeros(len(keys), bool), (s == 1)[own]]),
+                         np.concatenate([np.zeros(len(keys), bool), np.full(int(own.sum()), exact)]),
+                         self.sheet.where(iy[rest], ix[rest]) if len(rest) else None)
         e = np.empty((len(iy), nz, 3), complex)
         h = np.empty((len(iy), nz, 3), complex)
         if len(rest):
-            nf = near_fields(self.model, self.sheet.where(iy[rest], ix[rest]), self.power_w, jobs=self.jobs,
-                             h_method="e-only", progress=self.progress)
             e[rest] = nf.e_v_per_m.reshape(len(rest), nz, 3)
-            self.solution = nf.solution
 
             def node(k: np.ndarray) -> np.ndarray:
                 return np.stack([self._h[int(v)] for v in k])
@@ -911,7 +1000,7 @@ class SampledH:
         lost = np.flatnonzero((live & ~np.isfinite(h).all(axis=2)).any(axis=1))
         if len(lost):
             keys_ = iy[lost] * nx + ix[lost]
-            self._nodes(keys_, np.ones(len(lost), bool))
+            self._nodes(keys_, np.ones(len(lost), bool), np.ones(len(lost), bool))
             for k, key in zip(lost, keys_, strict=True):
                 e[k], h[k] = self._e[int(key)], self._h[int(key)]
         h[~np.isfinite(e).all(axis=2)] = np.nan  # masked, as E

@@ -154,13 +154,12 @@ def _adaptive_ratio(site, t, model, feed_m, origin, u, s, z, spacing_m, workers)
         return _worst(site, t, v["e"], v["h"])
 
     stride = adaptive.stride_for(spacing_m)
-    iz, i_s = np.indices((len(z), len(s)))
-    pts = where(iz.ravel(), i_s.ravel())
-    reach = max(adaptive.WIRE_REACH_M, 2 * spacing_m)
-    near = engine.mask_points(model, pts, reach)
     ss, zz = np.meshgrid(s, z)
     trend = adaptive.inverse_square_trend(np.hypot(ss, zz - feed_m[2]), spacing_m)
-    got = adaptive.refine(ss.shape, evaluate, ratio, adaptive.LEVELS, stride, near.reshape(ss.shape), None, trend)
+    # a drawing: nothing on it is judged (the levels' maps are), so a wire's neighbourhood is refined where the
+    # drawn levels or the interpolation check ask, not in full
+    got = adaptive.refine(ss.shape, evaluate, ratio, adaptive.LEVELS, stride, None, None, trend,
+                          np.zeros(ss.shape, bool))
     return ratio(got.values, None, None)
 
 
