@@ -59,6 +59,45 @@ def test_synthetic_field_is_reproduced_with_fewer_points():
     assert r.max() == pytest.approx(exact.max(), rel=0.02)
 
 
+def test_cells_without_a_judged_point_take_the_drawn_tolerance():
+    # the west half judged, the east half only drawn: fewer points there, each within its own tolerance
+    f = _field(121, 141, 0.25, [(9.0, 15.0, 30.0), (27.0, 10.0, 8.0)])
+    judged = np.zeros(f.shape, bool)
+    judged[:, :70] = True
+    calls = []
+
+    def evaluate(iy, ix):
+        calls.append(len(iy))
+        return {"e": f[iy, ix]}
+
+    got = adaptive.refine(f.shape, evaluate, lambda v, iy, ix: v["e"] ** 2, LEVELS, adaptive.stride_for(0.25),
+                          judged=judged)
+    every, _ = _run(f, adaptive.stride_for(0.25))
+    assert got.evaluated[:, 72:].sum() < every.evaluated[:, 72:].sum()
+    exact, r = f**2, got.values["e"] ** 2
+    west, east = np.s_[:, :64], np.s_[:, 72:]  # clear of the cells that straddle the boundary
+    assert np.all(np.abs(r[west] - exact[west]) <= 2 * adaptive.TOLERANCE * exact[west] + adaptive.FLOOR)
+    assert np.all(np.abs(r[east] - exact[east]) <= 2 * adaptive.DRAWN_TOLERANCE * exact[east] + adaptive.FLOOR)
+    for level in LEVELS:  # drawn levels are resolved everywhere
+        assert np.array_equal(exact >= level, r >= level)
+
+
+def test_settle_worst_reaches_a_computed_worst_among_many_that_read_high():
+    # every interpolated point of a region reads 4 % above the truth (an interpolated H at the top of its bound):
+    # settling evaluates them until the region's worst is a computed point, the true worst
+    rng = np.random.default_rng(3)
+    truth = 1.0 + 0.01 * rng.random((20, 20))
+    evaluated = np.zeros(truth.shape, bool)
+    evaluated[::4, ::4] = True
+    read = np.where(evaluated, truth, truth * 1.04)
+    got = adaptive.Refined({"e": read.copy()}, evaluated, int(evaluated.sum()))
+    labels = np.zeros(truth.shape, int)
+    out = adaptive.settle_worst(got, lambda iy, ix: {"e": truth[iy, ix]}, lambda v, iy, ix: v["e"], labels)
+    worst = np.unravel_index(np.argmax(out.values["e"]), truth.shape)
+    assert out.evaluated[worst]
+    assert out.values["e"].max() == truth.max()
+
+
 def test_contours_of_judged_levels_are_resolved():
     f = _field(121, 141, 0.25, [(17.0, 15.0, 40.0)])
     got, _ = _run(f, adaptive.stride_for(0.25))

@@ -95,6 +95,48 @@ def test_nodes_are_kept_and_the_order_of_points_does_not_matter():
     np.testing.assert_allclose(e2, e1[k], rtol=1e-9)
 
 
+def test_node_columns_between_nodes_take_every_other_height():
+    # body-line heights 0.36 m apart, as the demo's: a node column far enough from the wire takes curl E at heights
+    # 0, 2, 4 and 5 and H cubic in height between them; within the bound of the reference at every height
+    m = _model(lambda: antennas.dipole("d", (0, 0), 8.0, resonant_mhz=14.2), 14.2)
+    lat = engine.Lattice((-8.0, -8.0, 0.2), (0.5, 0.5, 0.36), (33, 33, 6))
+    sampler = engine.SampledH(m, lat, 100.0)
+    assert sampler._z_sparse.mean() > 0.5
+    iy, ix = np.divmod(np.arange(33 * 33), 33)
+    e, h = sampler.fields(iy, ix)
+    ref, mag, steady = _reference(m, lat)
+    got = engine.rms_magnitude(h.transpose(1, 0, 2).reshape(-1, 3))  # heights slowest, as the lattice
+    err = np.abs(got - mag) / mag
+    assert np.max(err[steady]) <= BOUND
+    # a node interpolated in height is not "computed"; asked exactly, it is, and reads the reference there
+    k = next(int(i) for i in range(len(iy)) if sampler._z_sparse[iy[i], ix[i]] and sampler.stride[iy[i] // 4, ix[i] // 4] > 1
+             and iy[i] % 8 == 0 and ix[i] % 8 == 0)
+    assert not sampler.computed(iy[[k]], ix[[k]])[0]
+    _, h_exact = sampler.fields(iy[[k]], ix[[k]], exact=True)
+    assert sampler.computed(iy[[k]], ix[[k]])[0]
+    col = np.arange(6) * 33 * 33 + k
+    live = steady[col]
+    np.testing.assert_allclose(engine.rms_magnitude(h_exact[0])[live], mag[col][live], rtol=1e-9)
+
+
+def test_a_batch_reads_as_its_requests_one_by_one():
+    # near_fields_batch hands several requests to the workers together; each answer is what near_fields gives
+    m = _model(lambda: antennas.dipole("d", (0, 0), 6.0, resonant_mhz=14.2), 14.2)
+    cols = engine.Columns(np.array([[1.0, 2.0], [1.5, 2.0], [2.0, 2.0], [4.0, -3.0]]), 0.2, 0.3, 5, 0.5)
+    pts = np.array([[0.5, 0.5, 1.0], [0.5, 0.5, 1.4], [0.5, 0.5, 1.8], [3.0, 1.0, 0.7]])
+    requests = [(cols, "e-only"), (pts, "curl"), (cols, "checked")]
+    with engine.Workers(2) as pool:
+        batch = engine.near_fields_batch(m, requests, 50.0, pool)
+    for (where, method), got in zip(requests, batch, strict=True):
+        one = engine.near_fields(m, where, 50.0, h_method=method)
+        np.testing.assert_allclose(got.e_v_per_m, one.e_v_per_m, rtol=1e-12)
+        np.testing.assert_allclose(got.h_a_per_m, one.h_a_per_m, rtol=1e-12)
+    # points on one vertical share a NEC card: the same fields as a column of that vertical
+    col = engine.near_fields(m, engine.Columns(np.array([[0.5, 0.5]]), 1.0, 0.4, 3), 50.0, h_method="e-only")
+    run = engine.near_fields(m, pts, 50.0, h_method="e-only")
+    np.testing.assert_allclose(run.e_v_per_m[:3], col.e_v_per_m, rtol=1e-9)
+
+
 def test_a_vertical_section_sheet_is_sampled_like_a_plan():
     # a vertical sheet across a dipole: x along the ground, y upward; against the reference at its points
     m = _model(lambda: antennas.dipole("d", (0, 0), 8.0, resonant_mhz=14.2), 14.2)
