@@ -70,7 +70,7 @@ def settle_worst(got: Refined, evaluate, ratio, labels: np.ndarray, per_round: i
     values = got.values
     done = (got.evaluated if final is None else final).copy()
     iy_all, ix_all = np.indices(done.shape)
-    for k in range(rounds):
+    for round_ in range(rounds):
         r = ratio({k: v.ravel() for k, v in values.items()}, iy_all.ravel(), ix_all.ravel()).reshape(done.shape)
         pick_y, pick_x = [], []
         for lab in np.unique(labels[labels > -2]):
@@ -83,7 +83,7 @@ def settle_worst(got: Refined, evaluate, ratio, labels: np.ndarray, per_round: i
             settled = r[inside & done]
             above = inside & ~done & (r > (settled.max() if settled.size else -np.inf))
             cand = np.flatnonzero(above.ravel())
-            top = cand[np.argsort(r.ravel()[cand])[::-1][: per_round << k]]
+            top = cand[np.argsort(r.ravel()[cand])[::-1][: per_round << round_]]
             pick_y.append(top // done.shape[1])
             pick_x.append(top % done.shape[1])
         if not pick_y:
