@@ -32,10 +32,11 @@ Six E evaluations a point make H the whole cost of an assessment. :class:`Sample
 reference at every point only near the wires; elsewhere at nodes every s-th point (s = 2, 4, 8, by the
 distance to the wires and at most an eighth of a wavelength apart), checked for a Sommerfeld step inside
 the stencil (then read by the median of slopes, which a step cannot move), and interpolates H's
-components between nodes by cubic Lagrange polynomials; E is computed at every point. Against the
+components between nodes by cubic Lagrange polynomials; a node column takes curl E at every other height
+where the wires are as far away again, H cubic in height between; E is computed at every point. Against the
 reference where it is steady, on a 0.3 m lattice (30 m square, 9 heights) around each of
-``benchmarks/engine.py``'s antennas: within 1.2 % everywhere, at 1.25 (dipole at 10 m), 1.5 (beam at
-12 m), 1.75 (end-fed wire) and 2.9 (ground-mounted vertical, radials across the lattice) E evaluations a
+``benchmarks/engine.py``'s antennas: within 1.2 % everywhere, at 1.2 (dipole at 10 m), 1.3 (beam at
+12 m), 1.4 (end-fed wire) and 2.6 (ground-mounted vertical, radials across the lattice) E evaluations a
 point; within 2 % on every example wherever the ratio is 0.05 or more (``tests/engine/test_sampled_h.py``).
 
 References
@@ -355,13 +356,7 @@ def _points(counter: _Counter, pts: np.ndarray, kind: str, name: str) -> np.ndar
     k = 0
     try:
         while k < len(p):
-            j = k + 1
-            same = j < len(p) and p[j, 0] == p[k, 0] and p[j, 1] == p[k, 1]
-            gap = float(p[j, 2] - p[k, 2]) if same else 0.0
-            if gap > 0:
-                while (j < len(p) and p[j, 0] == p[k, 0] and p[j, 1] == p[k, 1]
-                       and abs(p[j, 2] - p[j - 1, 2] - gap) <= 1e-9 * max(1.0, gap)):
-                    j += 1
+            j, gap = _run(p[:, 2], p[:, :2], k)
             x, y, z = (float(v) for v in p[k])
             nf = counter.card(kind, (0, 1, 1, j - k, x, y, z, 0.0, 0.0, gap if j - k > 1 else 0.0))
             out[order[k:j]] = np.column_stack([np.asarray(nf.get_field_x()), np.asarray(nf.get_field_y()),
@@ -372,6 +367,18 @@ def _points(counter: _Counter, pts: np.ndarray, kind: str, name: str) -> np.ndar
     return out
 
 
+def _run(along: np.ndarray, line: np.ndarray, k: int) -> tuple[int, float]:
+    """The run of entries from ``k`` that one NEC card can hold: on the same line (equal rows of ``line``) at
+    equal positive steps of ``along``. Returns its end (exclusive) and its step (0 for a single entry)."""
+    j = k + 1
+    if j >= len(along) or not (line[j] == line[k]).all() or not along[j] > along[k]:
+        return j, 0.0
+    gap = float(along[j] - along[k])
+    while j < len(along) and (line[j] == line[k]).all() and abs(along[j] - along[j - 1] - gap) <= 1e-9 * max(1.0, gap):
+        j += 1
+    return j, gap
+
+
 def _columns(counter: _Counter, cols: Columns, offset, kind: str, name: str) -> np.ndarray:
     xy = np.asarray(cols.xy_m, float).reshape(-1, 2)
     out = np.empty((len(xy), cols.nz, 3), complex)
@@ -379,11 +386,7 @@ def _columns(counter: _Counter, cols: Columns, offset, kind: str, name: str) -> 
     k = 0
     try:
         while k < len(xy):
-            j = k + 1
-            gap = xy[k + 1, 0] - xy[k, 0] if cols.run_dx_m > 0 and k + 1 < len(xy) and xy[k + 1, 1] == xy[k, 1] else 0.0
-            if gap > 0:
-                while j < len(xy) and xy[j, 1] == xy[k, 1] and abs(xy[j, 0] - xy[j - 1, 0] - gap) <= 1e-9 * max(1.0, gap):
-                    j += 1
+            j, gap = _run(xy[:, 0], xy[:, 1:], k) if cols.run_dx_m > 0 else (k + 1, 0.0)
             nf = counter.card(kind, (0, j - k, 1, cols.nz, float(xy[k, 0]) + ox, float(xy[k, 1]) + oy, cols.z0_m + oz,
                                      gap if j - k > 1 else 0.0, 0.0, cols.dz_m))
             v = np.column_stack([np.asarray(nf.get_field_x()), np.asarray(nf.get_field_y()), np.asarray(nf.get_field_z())])

@@ -79,13 +79,19 @@ def test_sampled_h_at_points_0p3_1_and_3_m_from_the_radials_of_a_ground_mounted_
     _within_bound(m, engine.Lattice((-1.5, 0.3, 0.2), (0.3, 0.3, 0.4), (30, 30, 3)), 0.15, 0.7)
 
 
+def _sampled_everywhere(m, lat, power_w):
+    """A SampledH on ``lat`` and its E and H at every plan point (with the plan indices asked)."""
+    sampler = engine.SampledH(m, lat, power_w)
+    nx, ny, _ = lat.shape
+    iy, ix = np.divmod(np.arange(nx * ny), nx)
+    e, h = sampler.fields(iy, ix)
+    return sampler, iy, ix, e, h
+
+
 def test_nodes_are_kept_and_the_order_of_points_does_not_matter():
     m = _model(lambda: antennas.dipole("d", (0, 0), 6.0, resonant_mhz=14.2), 14.2)
-    lat = engine.Lattice((-6.0, -6.0, 1.0), (0.5, 0.5, 0.5), (25, 25, 2))
-    sampler = engine.SampledH(m, lat, 10.0)
+    sampler, iy, ix, e1, h1 = _sampled_everywhere(m, engine.Lattice((-6.0, -6.0, 1.0), (0.5, 0.5, 0.5), (25, 25, 2)), 10.0)
     assert sampler.stride.max() > 1
-    iy, ix = np.divmod(np.arange(25 * 25), 25)
-    e1, h1 = sampler.fields(iy, ix)
     nodes = sampler.node_columns
     rng = np.random.default_rng(1)
     k = rng.permutation(len(iy))[:100]
@@ -100,10 +106,8 @@ def test_node_columns_between_nodes_take_every_other_height():
     # 0, 2, 4 and 5 and H cubic in height between them; within the bound of the reference at every height
     m = _model(lambda: antennas.dipole("d", (0, 0), 8.0, resonant_mhz=14.2), 14.2)
     lat = engine.Lattice((-8.0, -8.0, 0.2), (0.5, 0.5, 0.36), (33, 33, 6))
-    sampler = engine.SampledH(m, lat, 100.0)
+    sampler, iy, ix, _, h = _sampled_everywhere(m, lat, 100.0)
     assert sampler._z_sparse.mean() > 0.5
-    iy, ix = np.divmod(np.arange(33 * 33), 33)
-    e, h = sampler.fields(iy, ix)
     ref, mag, steady = _reference(m, lat)
     got = engine.rms_magnitude(h.transpose(1, 0, 2).reshape(-1, 3))  # heights slowest, as the lattice
     err = np.abs(got - mag) / mag
