@@ -262,3 +262,18 @@ def test_probe_of_a_rotator_reads_its_worst_heading():
     assert not masked.any()
     assert np.all(e >= e_back * (1 - 1e-6))
     assert e[0] == pytest.approx(e_back[0], rel=0.02)  # straight behind: heading 180 is the worst one
+
+
+def test_transmissions_side_by_side_read_as_one_after_another():
+    # with a pool, an assessment's transmissions run in threads sharing the workers; nothing depends on it but
+    # the last bits of NEC's arithmetic (a card's points start elsewhere as the chunks fall)
+    from .test_standard_rules import group_site
+
+    s = group_site()
+    one, two = assess.assess(s, jobs=1), assess.assess(s, jobs=2)
+    assert one.warnings == two.warnings and one.points_evaluated == two.points_evaluated
+    for a, b in zip(one.transmissions, two.transmissions, strict=True):
+        assert a.name == b.name and a.warnings == b.warnings
+        np.testing.assert_allclose(a.ratio, b.ratio, rtol=1e-9)
+        np.testing.assert_allclose([x.max_ratio for x in a.areas], [x.max_ratio for x in b.areas], rtol=1e-9)
+    np.testing.assert_allclose(one.combined.ratio, two.combined.ratio, rtol=1e-9)

@@ -11,6 +11,7 @@ ceiling, the model and far-field distances, and the combined assessment over gro
 from __future__ import annotations
 
 import math
+import threading
 import warnings
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
@@ -380,10 +381,18 @@ def _assess_once(site: Site, workers: engine.Workers, progress, exhaustive: bool
     pl = plan(site)
     notes: list[str] = list(site.warnings)
     lats = _lattices(site, pl)
-    results = []
-    points = [0]
-    for t in site.transmissions:
-        results.append(_one(site, pl, lats, t, workers, progress, notes, exhaustive, points))
+    progress = _serialised(progress)
+
+    def one(t) -> tuple[TransmissionResult, int]:
+        points = [0]
+        return _one(site, pl, lats, t, workers, progress, [], exhaustive, points), points[0]
+
+    # transmissions side by side (threads waiting on the shared workers); notes merged in the site's order
+    done = workers.each(one, site.transmissions)
+    results = [r for r, _ in done]
+    points = [sum(n for _, n in done)]
+    for r in results:
+        notes += [n for n in r.warnings if n not in notes]
     if exhaustive:
         notes.append("Every lattice point evaluated with NEC (--exhaustive)")
     else:
@@ -404,6 +413,19 @@ def _assess_once(site: Site, workers: engine.Workers, progress, exhaustive: bool
         h_method = "sampled"
     return Assessment(site, pl, tuple(results), comb, points[0], h_method, tuple(notes),
                       edge, exhaustive=exhaustive)
+
+
+def _serialised(progress: Callable[[int], None] | None) -> Callable[[int], None] | None:
+    """``progress`` called by one thread at a time."""
+    if progress is None:
+        return None
+    lock = threading.Lock()
+
+    def call(n: int) -> None:
+        with lock:
+            progress(n)
+
+    return call
 
 
 def edge_ratio(ratio: np.ndarray) -> float:
@@ -452,8 +474,8 @@ def _ring_ratio(site: Site, workers: engine.Workers, stride: int = 1) -> float:
     dz = float(heights[1] - heights[0]) if len(heights) > 1 else 1.0
     # one NEC card a column, the first and last rows one card each
     pts = engine.Columns(np.column_stack([px, py]), float(heights[0]), dz, len(heights), stride * pl.spacing_m)
-    by_tx = {}
-    for t in site.transmissions:
+
+    def worst_of(t) -> np.ndarray:
         worst = np.zeros(len(px))
         for heading in headings_for(site, t.antenna):
             nf = engine.near_fields(model_for(site, t.name, heading_deg=heading), pts, t.envelope_power_w, jobs=workers)
@@ -463,7 +485,9 @@ def _ring_ratio(site: Site, workers: engine.Workers, stride: int = 1) -> float:
             e_p, h_p = averaging.spatial_peak(e), averaging.spatial_peak(h)
             for r, _ in t.check_ratios(site.standard, "public", e_b, h_b, e_p, h_p).values():
                 worst = np.fmax(worst, np.nan_to_num(r))
-        by_tx[t.name] = worst
+        return worst
+
+    by_tx = dict(zip([t.name for t in site.transmissions], workers.each(worst_of, site.transmissions), strict=True))
     # field ratios added: never less than either summation rule gives
     groups = [np.sum([np.sqrt(by_tx[n]) for n in g], axis=0) ** 2 for g in group_members(site)]
     return float(np.max(groups)) if len(px) else 0.0

@@ -51,8 +51,9 @@ from __future__ import annotations
 import functools
 import math
 import os
+import threading
 from collections.abc import Callable, Sequence
-from concurrent.futures import ProcessPoolExecutor
+from concurrent.futures import FIRST_EXCEPTION, ProcessPoolExecutor, ThreadPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, field, replace
 
@@ -271,8 +272,18 @@ def _tags(model: Model) -> list[list[int]]:
     return tags
 
 
+# PyNEC in one process is used by one thread at a time (an assessment's transmissions run in threads of the main
+# process, each waiting on the workers; the few solves the main process does itself take this lock)
+_NEC_LOCK = threading.RLock()
+
+
 def _build(model: Model, check_engine: bool = True):
     """A solved PyNEC context for ``model`` (excitation 1 V peak)."""
+    with _NEC_LOCK:
+        return _build_unlocked(model, check_engine)
+
+
+def _build_unlocked(model: Model, check_engine: bool):
     nec = _pynec()
     name = model.name
     if check_engine and model.ground.finite:
@@ -400,18 +411,19 @@ def _columns(counter: _Counter, cols: Columns, offset, kind: str, name: str) -> 
 _AXES = np.eye(3)
 
 
+def _evaluator(counter: _Counter, where, name: str) -> Callable:
+    """``evaluate(kind, offset)``: E or H at ``where`` (a Lattice, Columns or points) shifted by ``offset``."""
+    if isinstance(where, Lattice):
+        return lambda kind, offset: _grid(counter, where.shifted(offset), kind, name)
+    if isinstance(where, Columns):
+        return lambda kind, offset: _columns(counter, where, offset, kind, name)
+    return lambda kind, offset: _points(counter, where + offset, kind, name)
+
+
 def _fields_peak(counter: _Counter, where, model: Model, h_method: str, step_m: float):
     """Peak E and H (N, 3) at a lattice or a point array, by ``h_method``."""
     name = model.name
-    if isinstance(where, Lattice):
-        def evaluate(kind, offset):
-            return _grid(counter, where.shifted(offset), kind, name)
-    elif isinstance(where, Columns):
-        def evaluate(kind, offset):
-            return _columns(counter, where, offset, kind, name)
-    else:
-        def evaluate(kind, offset):
-            return _points(counter, where + offset, kind, name)
+    evaluate = _evaluator(counter, where, name)
     if h_method == "nh":
         return evaluate("e", (0.0, 0.0, 0.0)), evaluate("h", (0.0, 0.0, 0.0))
     if h_method == "e-only":
@@ -425,22 +437,28 @@ def _fields_peak(counter: _Counter, where, model: Model, h_method: str, step_m: 
     e = sum(plus + minus) / 6.0
     h = _curl_h([(plus[a] - minus[a]) / step_m for a in range(3)], model)
     if h_method == "checked":
-        # E at the point itself: the halves of each axis's stencil give one-sided H; a Sommerfeld step in one
-        # half sets them apart by twice the error it makes in the central H
+        # E at the point itself too: a smooth field's Laplacian over the stencil is -k^2 E (Helmholtz), whatever
+        # its curvature near a wire; a Sommerfeld step of delta in one sample leaves a residual of delta / half^2
+        # and moves the central H by at most delta / (step omega mu0)
         e = evaluate("e", (0.0, 0.0, 0.0))
-        left = _curl_h([(e - minus[a]) / half for a in range(3)], model)
-        right = _curl_h([(plus[a] - e) / half for a in range(3)], model)
-        odd = rms_magnitude(right - left) > 2 * H_STEADY * rms_magnitude(h)
+        omega = 2 * math.pi * model.frequency_mhz * 1e6
+        residual = sum(plus[a] + minus[a] - 2 * e for a in range(3)) / half**2 + (omega / C0_M_PER_S) ** 2 * e
+        moved = rms_magnitude(residual) * half**2 / (step_m * omega * MU0_H_PER_M)
+        odd = moved > H_STEADY * rms_magnitude(h)
+
+        def robust(sub, at):  # the stencil's own samples at +-half are two of the robust curl's offsets
+            known = {o: [(plus if o > 0 else minus)[a][at] for a in range(3)] for o in (-0.5, 0.5)}
+            return _robust_curl(_evaluator(counter, sub, name), model, step_m, known)[1]
+
         if isinstance(where, Columns):  # height by height: a row's points share NEC cards
             grid = odd.reshape(-1, where.nz)
             xy = np.asarray(where.xy_m, float).reshape(-1, 2)
             for k in np.flatnonzero(grid.any(axis=0)):
                 cols = np.flatnonzero(grid[:, k])
                 level = replace(where, xy_m=xy[cols], z0_m=where.z0_m + k * where.dz_m, nz=1)
-                h[cols * where.nz + k] = _fields_peak(counter, level, model, "robust", step_m)[1]
+                h[cols * where.nz + k] = robust(level, cols * where.nz + k)
         elif odd.any():
-            h[odd] = _fields_peak(counter, (where if isinstance(where, np.ndarray) else where.points())[odd], model,
-                                  "robust", step_m)[1]
+            h[odd] = robust((where if isinstance(where, np.ndarray) else where.points())[odd], odd)
     return e, h
 
 
@@ -455,15 +473,17 @@ H_METHODS = ("nh", "curl", "checked", "robust", "e-only", "sampled")
 ROBUST_OFFSETS = (-1.0, -0.5, -0.25, 0.25, 0.5, 1.0)  # in units of the stencil step (2 cm: +-5 mm to +-2 cm)
 
 
-def _robust_curl(evaluate, model: Model, step_m: float):
+def _robust_curl(evaluate, model: Model, step_m: float, known: dict | None = None):
     """Peak E and H where a Sommerfeld step may lie inside the stencil: E at six offsets along each axis
     (``ROBUST_OFFSETS`` x ``step_m``), each derivative the median of the five slopes between neighbouring
     offsets (real and imaginary parts apart). A step crosses a line once: it spoils one slope of five
     (two steps, two), and the median is the slope of the smooth field. E is the mean at +-step/4."""
     offsets = np.asarray(ROBUST_OFFSETS) * step_m
+    known = known or {}
     d, e_mid = [], []
     for a in range(3):
-        samples = np.stack([evaluate("e", o * _AXES[a]) for o in offsets])  # (6, N, 3)
+        samples = np.stack([known[f][a] if f in known else evaluate("e", o * _AXES[a])
+                            for f, o in zip(ROBUST_OFFSETS, offsets, strict=True)])  # (6, N, 3)
         slopes = np.diff(samples, axis=0) / np.diff(offsets)[:, None, None]
         d.append(np.median(slopes.real, axis=0) + 1j * np.median(slopes.imag, axis=0))
         e_mid.append(0.5 * (samples[2] + samples[3]))
@@ -534,6 +554,7 @@ class Workers:
             raise ValueError(f"jobs must be >= 1, got {jobs}")
         self.jobs = int(jobs)
         self._pool: ProcessPoolExecutor | None = None
+        self._stopped = False
 
     def __enter__(self) -> Workers:
         if self.jobs > 1:
@@ -545,19 +566,51 @@ class Workers:
         return self
 
     def __exit__(self, exc_type, *exc) -> None:
-        if self._pool is not None:
-            if exc_type is not None:
-                # stopped (a signal, an error elsewhere): end the workers now rather than finish their chunks
-                for proc in list(getattr(self._pool, "_processes", {}).values()):
-                    proc.terminate()
-                self._pool.shutdown(wait=False, cancel_futures=True)
-            else:
-                self._pool.shutdown(cancel_futures=True)
+        if exc_type is not None:
+            self._stop()
+        elif self._pool is not None:
+            self._pool.shutdown(cancel_futures=True)
             self._pool = None
 
+    def _stop(self) -> None:
+        """Stopped (a signal, an error elsewhere): end the workers now rather than finish their chunks; any
+        later run raises."""
+        self._stopped = True
+        if self._pool is not None:
+            for proc in list(getattr(self._pool, "_processes", {}).values()):
+                proc.terminate()
+            self._pool.shutdown(wait=False, cancel_futures=True)
+            self._pool = None
+
+    def each(self, fn: Callable, items: Sequence) -> list:
+        """``[fn(x) for x in items]``, side by side in threads of this process when there is a pool (at most
+        ``jobs + 1`` at once): while one waits for a small round of its own, the workers compute another's.
+        Results in order and never dependent on the threading; the first error stops the workers and is raised."""
+        items = list(items)
+        if self._pool is None or len(items) < 2:
+            return [fn(x) for x in items]
+        with ThreadPoolExecutor(min(len(items), self.jobs + 1), thread_name_prefix="nfmap") as threads:
+            futures = [threads.submit(fn, x) for x in items]
+            try:
+                wait(futures, return_when=FIRST_EXCEPTION)
+                failed = [f for f in futures if f.done() and f.exception() is not None]
+                if failed:
+                    raise failed[0].exception()
+                return [f.result() for f in futures]
+            except BaseException:
+                for f in futures:
+                    f.cancel()
+                self._stop()  # the threads still running fail at their next round
+                raise
+
     def run(self, fn, tasks: list[tuple], done: Callable[[int], None] | None = None) -> list:
-        """``[fn(*t) for t in tasks]`` in order, in the pool when there is one and more than one task."""
-        if self._pool is None or len(tasks) == 1:
+        """``[fn(*t) for t in tasks]`` in order, in the pool when there is one (safe to call from several threads:
+        their tasks share the workers)."""
+        name = getattr(tasks[0][0], "name", "model") if tasks else "model"
+        pool = self._pool
+        if self._stopped:
+            raise EngineError("near field", name, "stopped (another part of the run failed or was interrupted)")
+        if pool is None:
             out = []
             for t in tasks:
                 out.append(fn(*t))
@@ -565,37 +618,48 @@ class Workers:
                     done(len(out) - 1)
             return out
         try:
-            futures = [self._pool.submit(fn, *t) for t in tasks]
+            futures = [pool.submit(fn, *t) for t in tasks]
             out = []
             for k, f in enumerate(futures):
                 out.append(f.result())
                 if done:
                     done(k)
         except BrokenProcessPool:
-            raise EngineError("near field", getattr(tasks[0][0], "name", "model"),
+            if self._stopped:
+                raise EngineError("near field", name, "stopped (another part of the run failed or was interrupted)") from None
+            raise EngineError("near field", name,
                               "a worker process died (killed, or out of memory); nothing was written") from None
+        except RuntimeError:  # the pool was shut down between the check above and a submit
+            if not self._stopped:
+                raise
+            raise EngineError("near field", name, "stopped (another part of the run failed or was interrupted)") from None
         return out
 
 
-_SOLVED: dict = {}  # per process: the last model solved, its context and card counter (points and columns)
+_SOLVED: list = []  # per process: the models last solved (newest last), each with its context and card counter
+CACHED_MODELS = 4  # transmissions assessed side by side each keep theirs
 CACHED_POINTS_MAX = 200_000  # a cached context keeps every pattern it computed: rebuilt beyond this many points
 CACHED_CARDS_MAX = 2_000  # ... or cards (PyNEC's pattern lookup slows as they pile up: 2.3 ms a card at 10^5)
 
 
 def _task(model: Model, where, h_method: str, step_m: float):
-    if isinstance(where, Lattice):
-        ctx, sol = _build(model)
-        counter = _Counter(ctx)
-    else:
-        # an adaptive lattice or a section asks the same model many times for few points: solve it once
-        entry = _SOLVED.get("model")
-        if entry is None or entry[0] != model or entry[3][0] > CACHED_POINTS_MAX or entry[2].n > CACHED_CARDS_MAX:
+    with _NEC_LOCK:
+        if isinstance(where, Lattice):
             ctx, sol = _build(model)
-            entry = (model, sol, _Counter(ctx), [0])
-            _SOLVED["model"] = entry
-        _, sol, counter, used = entry
-        used[0] += len(where.xy_m) * where.nz if isinstance(where, Columns) else len(where)
-    e, h = _fields_peak(counter, where, model, h_method, step_m)
+            counter = _Counter(ctx)
+        else:
+            # an adaptive lattice or a section asks the same model many times for few points: solve it once
+            entry = next((en for en in _SOLVED if en[0] == model), None)
+            if entry is not None:
+                _SOLVED.remove(entry)
+            if entry is None or entry[3][0] > CACHED_POINTS_MAX or entry[2].n > CACHED_CARDS_MAX:
+                ctx, sol = _build(model)
+                entry = (model, sol, _Counter(ctx), [0])
+            _SOLVED.append(entry)
+            del _SOLVED[:-CACHED_MODELS]
+            _, sol, counter, used = entry
+            used[0] += len(where.xy_m) * where.nz if isinstance(where, Columns) else len(where)
+        e, h = _fields_peak(counter, where, model, h_method, step_m)
     return e, h, sol
 
 
@@ -733,10 +797,23 @@ def _chunked(model: Model, where, n_jobs: int):
     masked = mask_points(model, pts)
     # small calls (an adaptive lattice's rounds, a section) still keep every worker busy; results never depend on it
     if isinstance(where, Columns):
-        live = np.flatnonzero(~masked.reshape(-1, where.nz).all(axis=1))  # columns with a point to evaluate
-        per = max(1, min(CHUNK_POINTS // where.nz, math.ceil(len(live) / (4 * n_jobs))))
-        chunks = [where.take(live[i : i + per]) for i in range(0, len(live), per)]
-        keep = (live[:, None] * where.nz + np.arange(where.nz)).ravel()
+        # each column from its lowest to its highest live point (a wire's exclusion near the ground masks the
+        # lowest heights: no NEC work there), columns of equal reach together, a row's columns sharing cards
+        nz = where.nz
+        grid = ~masked.reshape(-1, nz)
+        live = np.flatnonzero(grid.any(axis=1))
+        low = np.argmax(grid[live], axis=1)
+        high = nz - 1 - np.argmax(grid[live, ::-1], axis=1)
+        per = max(1, min(CHUNK_POINTS // nz, math.ceil(len(live) / (4 * n_jobs))))
+        chunks, kept = [], []
+        for reach in np.unique(low * nz + high):
+            k0, k1 = divmod(int(reach), nz)
+            same = live[low * nz + high == reach]
+            part = replace(where, z0_m=where.z0_m + k0 * where.dz_m, nz=k1 - k0 + 1)
+            for i in range(0, len(same), per):
+                chunks.append(part.take(same[i : i + per]))
+                kept.append((same[i : i + per, None] * nz + np.arange(k0, k1 + 1)).ravel())
+        keep = np.concatenate(kept) if kept else np.zeros(0, int)
     else:
         keep = np.flatnonzero(~masked)
         per = max(1, min(CHUNK_POINTS, math.ceil(len(keep) / (4 * n_jobs))))
@@ -759,8 +836,8 @@ H_STRIDES = (1, 2, 4, 8)
 H_NODE_SCALE = 0.5  # node spacing <= this times the distance from the block to the nearest wire ...
 H_NODE_WAVELENGTHS = 0.125  # ... and <= this many wavelengths
 H_BOUND = 0.02  # |H| between nodes is within this share of the reference (measured and tested; README)
-H_STEADY = 0.01  # a node between nodes whose central H may be off by more than this share (its one-sided halves
-# differ by twice it) takes the robust curl
+H_STEADY = 0.01  # a node between nodes whose central H a Sommerfeld step inside its stencil could move by more than
+# this share (by the Laplacian of E over the stencil, which is -k^2 E where E is smooth) takes the robust curl
 
 
 @functools.lru_cache(maxsize=64)
@@ -838,9 +915,11 @@ class SampledH:
     blocks share them) and the last column.
 
     - s = 1, near wires: every column is a node, E and H the reference (curl E, :func:`near_fields` "curl").
-    - A node between nodes is "checked": E at the node itself too, and where the one-sided halves of its
-      stencil disagree (a Sommerfeld step inside it, which would spread as a spike over its neighbourhood)
-      H is the "robust" curl, the median of five slopes along each axis.
+    - A node between nodes is "checked": E at the node itself too. A smooth field's Laplacian over the seven
+      points is -k^2 E however strongly it curves beside a wire; a Sommerfeld step inside the stencil (which
+      would spread as a spike over the node's neighbourhood) leaves a residual that bounds how far it moved
+      the central H. Where that could be more than ``H_STEADY`` H is the "robust" curl, the median of five
+      slopes along each axis (two of its six offsets are the stencil's own samples).
     - Between nodes E is computed (one E evaluation) and H's complex components are interpolated, height by
       height, by cubic Lagrange polynomials on the four nearest nodes in each direction (:func:`_axis_table`).
       The components, not |H|: the magnitude has a kink at a null of the field (measured: |H| interpolated
@@ -900,7 +979,7 @@ class SampledH:
         iy, ix = np.divmod(keys, nx)
         sparse = ~fl & self._z_sparse[iy, ix]
         # a node between nodes stands for its neighbourhood: a Sommerfeld step inside its stencil (a spike) must
-        # not spread; such a node is found by its one-sided halves and takes the robust curl (median slopes)
+        # not spread; such a node is found by the Laplacian of its stencil and takes the robust curl (median slopes)
         groups = [(sel, method, rows) for method, sel, rows in (
             ("curl", np.flatnonzero(ref), None), ("checked", np.flatnonzero(~ref & ~sparse), None),
             ("checked", np.flatnonzero(sparse), "even"), ("checked", np.flatnonzero(sparse), "top"),
@@ -1062,9 +1141,12 @@ def pattern_figures(structure: Structure, frequency_mhz: float, step_deg: float 
     (RP card with the XNDA averaging flag) at ``step_deg``. A sound model gives 1 within about
     0.2 dB (common practice).
     """
-    s = replace(structure, loads=())
-    model = Model((s,), 0, frequency_mhz, Ground("free-space"))
-    ctx, _ = _build(model)
+    with _NEC_LOCK:
+        return _pattern_figures(replace(structure, loads=()), frequency_mhz, step_deg)
+
+
+def _pattern_figures(s: Structure, frequency_mhz: float, step_deg: float) -> tuple[float, float]:
+    ctx, _ = _build(Model((s,), 0, frequency_mhz, Ground("free-space")))
     n_theta = int(round(180 / step_deg)) + 1
     n_phi = int(round(360 / step_deg)) + 1
     try:
@@ -1072,7 +1154,7 @@ def pattern_figures(structure: Structure, frequency_mhz: float, step_deg: float 
         rp = ctx.get_radiation_pattern(0)
         return float(rp.get_average_power_gain()), float(np.max(rp.get_gain()))
     except (RuntimeError, AttributeError) as err:
-        raise EngineError("solve", structure.name, str(err) or "radiation pattern failed") from err
+        raise EngineError("solve", s.name, str(err) or "radiation pattern failed") from err
 
 
 def average_gain(structure: Structure, frequency_mhz: float) -> float:

@@ -264,3 +264,55 @@ def test_deck_has_the_cards():
     for c in ("CM", "CE", "GW", "GE", "GN", "LD", "EX", "FR", "NE", "NH", "EN"):
         assert c in cards
     assert "LD 4 3 3 " in deck  # the passive beam's fed element carries 50 ohm
+
+
+def _double(x):
+    return 2 * x
+
+
+def _fail_on_three(x):
+    if x == 3:
+        raise engine.EngineError("near field", "m", "three")
+    return x
+
+
+def test_workers_each_keeps_the_order_and_stops_at_the_first_error():
+    # an assessment's transmissions run side by side in threads sharing the workers: results in order, an
+    # error raised (not lost in a thread) and the workers stopped, so that nothing else runs on
+    with engine.Workers(2) as pool:
+        assert pool.each(_double, range(5)) == [0, 2, 4, 6, 8]
+    pool = engine.Workers(2)
+    with pytest.raises(engine.EngineError, match="three"):
+        with pool:
+            pool.each(_fail_on_three, range(5))
+    with pytest.raises(engine.EngineError, match="stopped"):
+        pool.run(_double, [(1,)])
+
+
+def test_columns_are_evaluated_from_their_lowest_live_height():
+    # columns beside a wire 0.3 m above the ground are masked at their lowest heights; NEC is not asked there,
+    # and the live heights read as the same points one by one
+    s = antennas.segment(antennas.dipole("d", (0, 0), 0.3, resonant_mhz=14.2), 14.2)
+    m = engine.Model((s,), 0, 14.2, engine.ground("average"))
+    cols = engine.Columns(np.array([[0.3, 1.0], [0.6, 1.0], [3.0, 1.0]]), 0.1, 0.3, 5, 0.0)
+    pts = cols.points()
+    masked = engine.mask_points(m, pts).reshape(3, 5)
+    assert masked[0, 0] and not masked[0].all() and not masked[2].any()  # the check is not vacuous
+    asked = []
+    real = engine._Counter.card
+
+    def card(self, kind, args):
+        asked.append(args[3])  # heights in the card
+        return real(self, kind, args)
+
+    engine._Counter.card = card
+    try:
+        got = engine.near_fields(m, cols, 10.0, h_method="curl")
+    finally:
+        engine._Counter.card = real
+    assert min(asked) < 5  # a column started above its masked heights
+    one = engine.near_fields(m, pts, 10.0, h_method="curl")
+    np.testing.assert_array_equal(got.masked, one.masked)
+    live = ~got.masked
+    np.testing.assert_allclose(got.e_v_per_m[live], one.e_v_per_m[live], rtol=1e-9)
+    np.testing.assert_allclose(got.h_a_per_m[live], one.h_a_per_m[live], rtol=1e-9)

@@ -223,3 +223,33 @@ def test_the_robust_curl_reads_through_a_sommerfeld_step():
         # runs smoothly through it
         np.testing.assert_allclose(got[[0, 2]], curl[[0, 2]], rtol=0.01)
         assert got[1].max() == pytest.approx(0.5 * (curl[0].max() + curl[2].max()), rel=0.02)
+    # where the check finds the step, the node takes the robust curl itself (the stencil's own +-1 cm samples
+    # serve as two of its offsets: the same value)
+    flagged = ~np.isclose(checked[1], curl[1], rtol=1e-12)
+    assert flagged.any()
+    np.testing.assert_allclose(checked[1][flagged], robust[1][flagged], rtol=1e-9)
+
+
+def test_a_checked_node_near_a_wire_keeps_the_central_curl():
+    # beside a wire E curves strongly over the stencil (its one-sided halves differ by several per cent), yet
+    # its Laplacian is -k^2 E there as anywhere in air (the Helmholtz equation for E in a source-free region:
+    # Balanis, Advanced Engineering Electromagnetics, 2nd ed., sec. 3.4, from memory); the check finds no step
+    # and the node keeps the central H, equal to the reference
+    m = _model(lambda: antennas.dipole("d", (0, 0), 1.5, resonant_mhz=14.2), 14.2)
+    pts = np.array([[x, 1.0, 1.5] for x in (0.3, 0.35, 0.4, 0.5)])  # the dipole runs north, along y
+    ref, mag, steady = _reference(m, pts)
+    assert steady.sum() >= 3
+    checked = engine.near_fields(m, pts, 100.0, h_method="checked")
+    np.testing.assert_allclose(checked.h_a_per_m[steady], ref.h_a_per_m[steady], rtol=1e-12)
+    # the halves of the stencil (+-1 cm) do differ by more than twice 1 %: a one-sided test would have flagged them
+    half = engine.CURL_STEP_M / 2
+
+    def e(offset):
+        return engine.near_fields(m, pts + offset, 100.0, h_method="e-only").e_v_per_m
+
+    centre = e(np.zeros(3))
+    shifts = [(e(half * a), e(-half * a)) for a in np.eye(3)]
+    left = engine._curl_h([(centre - mi) / half for _, mi in shifts], m)
+    right = engine._curl_h([(pl - centre) / half for pl, _ in shifts], m)
+    apart = engine.rms_magnitude(right - left) / engine.rms_magnitude(ref.h_a_per_m)
+    assert apart[steady].max() > 2 * engine.H_STEADY
