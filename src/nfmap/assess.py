@@ -385,7 +385,7 @@ def _assess_once(site: Site, workers: engine.Workers, progress, exhaustive: bool
 
     def one(t) -> tuple[TransmissionResult, int]:
         points = [0]
-        return _one(site, pl, lats, t, workers, progress, [], exhaustive, points), points[0]
+        return _one(site, pl, lats, t, workers, progress, exhaustive, points), points[0]
 
     # transmissions side by side (threads waiting on the shared workers); notes merged in the site's order
     done = workers.each(one, site.transmissions)
@@ -799,7 +799,7 @@ def _merge_headings(a: list[LevelMaps], b: list[LevelMaps]) -> list[LevelMaps]:
     return out
 
 
-def _one(site, pl, lats, t, workers, progress, notes, exhaustive=True, points=None) -> TransmissionResult:
+def _one(site, pl, lats, t, workers, progress, exhaustive=True, points=None) -> TransmissionResult:
     """One transmission: solve, fields on every level, body reduction, ratios and figures.
 
     A beam on a rotator is assessed at every heading of ``ROTATOR_HEADINGS_DEG``; each plan
@@ -846,9 +846,6 @@ def _one(site, pl, lats, t, workers, progress, notes, exhaustive=True, points=No
     whole = checks.checks_for(site.standard, t.frequency_mhz)[0]
     lim_pub = checks.check_limits(whole, "public", t.frequency_mhz)
     ff = farfield.distance_to_limit_m(t.envelope_power_w * t.power_factor(whole, "public"), 10 ** (gain_dbi / 10), lim_pub)
-    for n in tx_notes:
-        if n not in notes:
-            notes.append(n)
     masked = sum(int((np.isnan(m.ratio) & lv.place).sum()) for m, lv in zip(levels, pl.levels, strict=True))
     spec = site.antenna(t.antenna)
     sec = section_.compute(
