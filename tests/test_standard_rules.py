@@ -165,6 +165,19 @@ def test_group_ceiling_puts_the_worst_combined_point_at_the_limit():
     assert b.combined.group_results[0].power_scale == pytest.approx(1.0, rel=1e-6)
 
 
+def test_a_groups_worst_combined_point_is_computed_in_every_member():
+    # each member's maps are settled alone; their sum is settled too: where the group reads its worst, every
+    # member's E and H were computed, not interpolated (nor H read at the top of its bound)
+    a = assess.assess(group_site())
+    pl = a.plan
+    by_name = {t.name: t for t in a.transmissions}
+    (judged,) = assess._group_levels(a.site, pl, by_name, ("a", "b"))
+    r = np.where(pl.levels[0].place, judged.ratio, np.nan)
+    iy, ix = np.unravel_index(np.nanargmax(r), r.shape)
+    assert all(t.levels[0].final is not None and t.levels[0].final[iy, ix] for t in a.transmissions)
+    assert max(x.max_ratio for x in a.combined.areas if x.max_ratio is not None) == pytest.approx(r[iy, ix], rel=1e-12)
+
+
 def test_group_sum_follows_each_checks_rule():
     a = assess.assess(group_site())
     k = 0

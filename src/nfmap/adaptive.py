@@ -53,6 +53,7 @@ class Refined:
     values: Values
     evaluated: np.ndarray
     plan_points: int
+    final: np.ndarray | None = None  # the points whose values are final (settle_worst's; None: the evaluated ones)
 
 
 def stride_for(spacing_m: float) -> int:
@@ -94,7 +95,7 @@ def settle_worst(got: Refined, evaluate, ratio, labels: np.ndarray, per_round: i
             values[name][iy, ix] = v
         done[iy, ix] = True
     evaluated = got.evaluated | done
-    return Refined(values, evaluated, int(evaluated.sum()))
+    return Refined(values, evaluated, int(evaluated.sum()), done)
 
 
 def inverse_square_trend(distance_m: np.ndarray, floor_m: float) -> np.ndarray:

@@ -340,6 +340,7 @@ class LevelMaps:
     h_a_per_m: np.ndarray
     e_peak_v_per_m: np.ndarray
     h_peak_a_per_m: np.ndarray
+    final: np.ndarray | None = None  # plan points whose E and H NEC computed (else interpolated); None: every one
 
     @property
     def ratio(self) -> np.ndarray:
@@ -391,6 +392,9 @@ def _assess_once(site: Site, workers: engine.Workers, progress, exhaustive: bool
     done = workers.each(one, site.transmissions)
     results = [r for r, _ in done]
     points = [sum(n for _, n in done)]
+    if not exhaustive:
+        results, n = settle_groups(site, pl, results, workers)
+        points[0] += n
     for r in results:
         notes += [n for n in r.warnings if n not in notes]
     if exhaustive:
@@ -404,7 +408,7 @@ def _assess_once(site: Site, workers: engine.Workers, progress, exhaustive: bool
             f"corners where that reproduces the evaluated centre within {100 * adaptive.TOLERANCE:g} % + "
             f"{adaptive.FLOOR:g} ({100 * adaptive.DRAWN_TOLERANCE:g} % in not-accessible areas and on sections, whose ratios are "
             "only drawn). Each area's "
-            f"worst point is a computed one. A hot spot smaller than {adaptive.COARSE_M:g} m across and more than "
+            f"worst point is a computed one, and so is each group's worst combined point. A hot spot smaller than {adaptive.COARSE_M:g} m across and more than "
             f"{adaptive.WIRE_REACH_M:g} m from every wire could be missed; --exhaustive evaluates every point")
     comb = combined(site, pl, results)
     edge = max([edge_ratio(r.ratio) for r in results] + [edge_ratio(comb.ratio)])
@@ -570,7 +574,7 @@ def at_radius(per_r: list[np.ndarray], radii: np.ndarray, r_m: np.ndarray) -> li
     return [np.where(np.isnan(v[k]) | np.isnan(v[k1]), np.nan, np.fmax(v[k], v[k1])) for v in per_r]
 
 
-def point_fields(site: Site, t, pts: np.ndarray):
+def point_fields(site: Site, t, pts: np.ndarray, jobs: int | engine.Workers = 1):
     """rms E [V/m] and H [A/m] at points at the envelope power, the masked flags and one solution's fields.
 
     For a beam on a rotator: the largest over the full solves at ``ROTATOR_HEADINGS_DEG`` and over the
@@ -580,7 +584,7 @@ def point_fields(site: Site, t, pts: np.ndarray):
     first = None
     e_all, h_all, m_all = [], [], []
     for heading in headings:
-        nf = engine.near_fields(model_for(site, t.name, heading_deg=heading), pts, t.envelope_power_w)
+        nf = engine.near_fields(model_for(site, t.name, heading_deg=heading), pts, t.envelope_power_w, jobs=jobs)
         first = first or nf
         e_all.append(engine.rms_magnitude(nf.e_v_per_m))
         h_all.append(engine.rms_magnitude(nf.h_a_per_m))
@@ -591,7 +595,7 @@ def point_fields(site: Site, t, pts: np.ndarray):
         r = np.hypot(pts[:, 0] - mx, pts[:, 1] - my)
         circ = np.column_stack([(mx + r[:, None] * np.sin(phi)).ravel(), (my + r[:, None] * np.cos(phi)).ravel(),
                                 np.repeat(pts[:, 2], len(phi))])
-        nf = engine.near_fields(beam_alone(site, t), circ, t.envelope_power_w)
+        nf = engine.near_fields(beam_alone(site, t), circ, t.envelope_power_w, jobs=jobs)
         e_all.append(np.max(engine.rms_magnitude(nf.e_v_per_m).reshape(len(pts), len(phi)), axis=1))
         h_all.append(np.max(engine.rms_magnitude(nf.h_a_per_m).reshape(len(pts), len(phi)), axis=1))
         m_all.append(nf.masked.reshape(len(pts), len(phi)).any(axis=1))
@@ -637,16 +641,19 @@ def _level_maps(site, pl, lats, model, t, workers, progress, exhaustive=True):
                 averaging.spatial_peak(h_z),
             )
             points += lat.size
+            final = None
         else:
-            reduced, sol_, n = _adaptive_level(site, pl, lv, model, t, workers, progress)
+            reduced, sol_, n, done = _adaptive_level(site, pl, lv, model, t, workers, progress)
             sol = sol_ or sol
             points += n
+            final = np.zeros((len(pl.y_m), len(pl.x_m)), bool)
+            final[lv.window] = done
         full = [np.full((len(pl.y_m), len(pl.x_m)), np.nan) for _ in range(4)]
         for dst, src in zip(full, reduced, strict=True):
             dst[lv.window] = src
         e, h, e_pk, h_pk = full
         judged, r_pub = judge_level(site, lv, t, e, h, e_pk, h_pk)
-        out.append(LevelMaps(lv.floor_m, t.envelope_power_w, judged, r_pub, e, h, e_pk, h_pk))
+        out.append(LevelMaps(lv.floor_m, t.envelope_power_w, judged, r_pub, e, h, e_pk, h_pk, final))
     return out, sol or engine.solve(model), points
 
 
@@ -713,11 +720,12 @@ def _adaptive_level(site: Site, pl: Plan, lv: Level, model: engine.Model, t, wor
     final = None
     if sampler is not None:
         iy_all, ix_all = np.indices(xx.shape)
-        final = sampler.computed(iy_all.ravel(), ix_all.ravel()).reshape(xx.shape)
+        # final: evaluated here and H computed there (a node the lattice never asked for holds interpolated values)
+        final = sampler.computed(iy_all.ravel(), ix_all.ravel()).reshape(xx.shape) & got.evaluated
         for k in ("h", "h_pk"):
             got.values[k][~final] *= 1.0 + engine.H_BOUND
     got = adaptive.settle_worst(got, lambda iy, ix: evaluate(iy, ix, exact=True), ratio, labels, final=final)
-    return tuple(got.values[k] for k in FIELDS), (sol[0] if sol else None), got.plan_points * len(heights)
+    return tuple(got.values[k] for k in FIELDS), (sol[0] if sol else None), got.plan_points * len(heights), got.final
 
 
 def _edges(site: Site, lv: Level, xs: np.ndarray, ys: np.ndarray) -> np.ndarray:
@@ -794,9 +802,15 @@ def _merge_headings(a: list[LevelMaps], b: list[LevelMaps]) -> list[LevelMaps]:
                 x.floor_m, x.power_w, judge(by_check, gov), _worst(x.ratio_public, y.ratio_public),
                 _worst(x.e_v_per_m, y.e_v_per_m), _worst(x.h_a_per_m, y.h_a_per_m),
                 _worst(x.e_peak_v_per_m, y.e_peak_v_per_m), _worst(x.h_peak_a_per_m, y.h_peak_a_per_m),
+                _both_final(x.final, y.final),
             )
         )
     return out
+
+
+def _both_final(a: np.ndarray | None, b: np.ndarray | None) -> np.ndarray | None:
+    """Final where both are (None: everywhere)."""
+    return b if a is None else a if b is None else a & b
 
 
 def _one(site, pl, lats, t, workers, progress, exhaustive=True, points=None) -> TransmissionResult:
@@ -838,24 +852,31 @@ def _one(site, pl, lats, t, workers, progress, exhaustive=True, points=None) -> 
             "resonance; check the antenna's dimensions (the fields are computed for the power accepted, so the "
             "assessment stays valid for the model as described)"
         )
-    ratio = display_ratio(pl, [m.ratio for m in levels])
-    areas = area_results(site, pl, [m.judged for m in levels])
-    crossings = line_crossings(site, pl, levels[0].ratio)
     structure = model.structures[model.active]
     _, gain_dbi = engine.pattern_figures(structure, t.frequency_mhz)
     whole = checks.checks_for(site.standard, t.frequency_mhz)[0]
     lim_pub = checks.check_limits(whole, "public", t.frequency_mhz)
     ff = farfield.distance_to_limit_m(t.envelope_power_w * t.power_factor(whole, "public"), 10 ** (gain_dbi / 10), lim_pub)
-    masked = sum(int((np.isnan(m.ratio) & lv.place).sum()) for m, lv in zip(levels, pl.levels, strict=True))
     spec = site.antenna(t.antenna)
     sec = section_.compute(
         site, t, model, feed_point_m(structure), (float(pl.x_m[0]), float(pl.x_m[-1]), float(pl.y_m[0]), float(pl.y_m[-1])),
         pl.spacing_m, workers, None if spec.section_deg is None else spec.section_deg - site.north_deg, adaptive_=not exhaustive)
     return TransmissionResult(
         t.name, t.antenna, t.frequency_mhz, t.power_w, t.average_power_w, sol.feed_impedance_ohm,
-        ratio, levels[0].ratio_public, tuple(levels), areas, crossings,
-        power_ceiling_w(t.power_w, areas), model_distance_m(pl, [m.ratio_public for m in levels], structure), ff,
-        gain_dbi, masked, tuple(tx_notes), levels[0].judged.checks, sec,
+        **_from_levels(site, pl, t, levels, structure), far_field_distance_m=ff, gain_dbi=gain_dbi,
+        warnings=tuple(tx_notes), section=sec,
+    )
+
+
+def _from_levels(site: Site, pl: Plan, t, levels: list[LevelMaps], structure: antennas.Structure) -> dict:
+    """The parts of a transmission's result that follow from its level maps."""
+    areas = area_results(site, pl, [m.judged for m in levels])
+    return dict(
+        ratio=display_ratio(pl, [m.ratio for m in levels]), ratio_public=levels[0].ratio_public, levels=tuple(levels),
+        areas=areas, crossings=line_crossings(site, pl, levels[0].ratio), power_ceiling_w=power_ceiling_w(t.power_w, areas),
+        model_distance_m=model_distance_m(pl, [m.ratio_public for m in levels], structure),
+        masked_points=sum(int((np.isnan(m.ratio) & lv.place).sum()) for m, lv in zip(levels, pl.levels, strict=True)),
+        checks=levels[0].judged.checks,
     )
 
 
@@ -1012,16 +1033,7 @@ def combined(site: Site, pl: Plan, results: list[TransmissionResult]) -> Combine
     worst check at each point, then the worst group; and per group the common power scale."""
     by_name = {r.name: r for r in results}
     groups = group_members(site)
-    group_levels = []  # per group, per level: Judged
-    for g in groups:
-        per_level = []
-        for k in range(len(pl.levels)):
-            by_check = {}
-            for c in _checks_of(site, [by_name[n] for n in g]):
-                members = [by_name[n].levels[k].judged.by_check[c.id] for n in g if c.id in by_name[n].checks]
-                by_check[c.id] = checks.group_sum(c, members)
-            per_level.append(judge(by_check))
-        group_levels.append(per_level)
+    group_levels = [_group_levels(site, pl, by_name, g) for g in groups]  # per group, per level: Judged
     per_level = []
     for k in range(len(pl.levels)):
         names = tuple(dict.fromkeys(n for gl in group_levels for n in gl[k].checks))
@@ -1040,6 +1052,97 @@ def combined(site: Site, pl: Plan, results: list[TransmissionResult]) -> Combine
         group_results.append(GroupResult(name, g, scale, worst.name if worst else None, worst.check if worst else None))
     return CombinedResult(tuple(groups), display_ratio(pl, [j.ratio for j in per_level]), areas,
                           line_crossings(site, pl, per_level[0].ratio), tuple(group_results), tuple(per_level))
+
+
+def _group_levels(site: Site, pl: Plan, by_name: dict[str, TransmissionResult], g: tuple[str, ...]) -> list[Judged]:
+    """Per level: each check of a group's members added by the check's own summation rule, then judged."""
+    per_level = []
+    for k in range(len(pl.levels)):
+        by_check = {}
+        for c in _checks_of(site, [by_name[n] for n in g]):
+            members = [by_name[n].levels[k].judged.by_check[c.id] for n in g if c.id in by_name[n].checks]
+            by_check[c.id] = checks.group_sum(c, members)
+        per_level.append(judge(by_check))
+    return per_level
+
+
+GROUP_SETTLE_ROUNDS = 6
+
+
+def settle_groups(site: Site, pl: Plan, results: list[TransmissionResult], workers: engine.Workers,
+                  per_round: int = 8) -> tuple[list[TransmissionResult], int]:
+    """Each group's worst combined point in each area (and on the ground outside every area) made one where every
+    member's E and H were computed, as each member's own worst already is (``adaptive.settle_worst``).
+
+    The members' maps are each settled alone; their sum can peak where one member's H was interpolated (read at the
+    top of its bound) or its fields interpolated. Each round evaluates, in every member, a region's highest combined
+    points not final in all of them that read above its highest final one (at most ``per_round``, doubled each
+    round, for ``GROUP_SETTLE_ROUNDS``); the members' maps take the computed fields there, and their results follow.
+    Returns the results and the NEC points evaluated (body-line points, each member once).
+    """
+    by_name = {r.name: r for r in results}
+    points = 0
+    for g in group_members(site):
+        if len(g) < 2:
+            continue
+        for round_ in range(GROUP_SETTLE_ROUNDS):
+            picks = []
+            for k, (lv, judged) in enumerate(zip(pl.levels, _group_levels(site, pl, by_name, g), strict=True)):
+                done = np.logical_and.reduce([_final_of(by_name[n].levels[k]) for n in g])
+                r = judged.ratio
+                labels = np.where(lv.place & np.isfinite(r), lv.area_index, -2)
+                chosen = []
+                for lab in np.unique(labels[labels > -2]):
+                    inside = labels == lab
+                    worst = np.max(r[inside])
+                    if done[inside & (r == worst)].any():
+                        continue
+                    settled = r[inside & done]
+                    above = np.flatnonzero((inside & ~done & (r > (settled.max() if settled.size else -np.inf))).ravel())
+                    chosen.append(above[np.argsort(r.ravel()[above])[::-1][: per_round << round_]])
+                if chosen:
+                    picks.append((k, np.concatenate(chosen)))
+            if not picks:
+                break
+            for n in g:
+                by_name[n] = _computed_at(site, pl, by_name[n], picks, workers)
+            points += len(g) * site.grid.body.points * sum(len(flat) for _, flat in picks)
+    return [by_name[r.name] for r in results], points
+
+
+def _final_of(m: LevelMaps) -> np.ndarray:
+    return np.ones(m.ratio.shape, bool) if m.final is None else m.final
+
+
+def _computed_at(site: Site, pl: Plan, res: TransmissionResult, picks: list[tuple[int, np.ndarray]],
+                 workers: engine.Workers) -> TransmissionResult:
+    """``res`` with its fields computed at plan points (level index, flat plan indices), judged there again."""
+    t = site.transmission(res.name)
+    heights = site.grid.body.heights_m()
+    levels = list(res.levels)
+    for k, flat in picks:
+        lv, m = pl.levels[k], levels[k]
+        iy, ix = np.divmod(flat, len(pl.x_m))
+        pts = np.column_stack([np.repeat(pl.x_m[ix], len(heights)), np.repeat(pl.y_m[iy], len(heights)),
+                               np.tile(lv.floor_m + heights, len(flat))])
+        e, h, _, _ = point_fields(site, t, pts, workers)
+        e, h = e.reshape(len(flat), len(heights)).T, h.reshape(len(flat), len(heights)).T
+        new = (averaging.body_reduce(e, site.grid.spatial), averaging.body_reduce(h, site.grid.spatial),
+               averaging.spatial_peak(e), averaging.spatial_peak(h))
+        fields = [np.array(f) for f in (m.e_v_per_m, m.h_a_per_m, m.e_peak_v_per_m, m.h_peak_a_per_m)]
+        for f, v in zip(fields, new, strict=True):
+            f[iy, ix] = v
+        at = np.zeros(m.ratio.shape, bool)
+        at[iy, ix] = True
+        # judged again only at these points (a beam on a rotator keeps its per-check worst over headings elsewhere)
+        again, r_pub = judge_level(site, lv, t, *fields)
+        by_check = {c: np.where(at, again.by_check[c], m.judged.by_check[c]) for c in m.judged.checks}
+        gov = {c: np.where(at, again.governing_by_check[c], m.judged.governing_by_check[c]) for c in m.judged.checks}
+        final = None if m.final is None else m.final | at
+        levels[k] = LevelMaps(m.floor_m, m.power_w, judge(by_check, gov), np.where(at, r_pub, m.ratio_public), *fields,
+                              final)
+    model = model_for(site, t.name)
+    return replace(res, **_from_levels(site, pl, t, levels, model.structures[model.active]))
 
 
 def _checks_of(site: Site, members: list[TransmissionResult]) -> list[checks.Check]:

@@ -526,6 +526,43 @@ def wire_distance_m(model: Model, points_m: np.ndarray) -> np.ndarray:
     return out
 
 
+def wire_scales_m(model: Model, points_m: np.ndarray, directions: Sequence[np.ndarray]) -> np.ndarray:
+    """The distance over which a wire's field changes, along each unit direction, at each point [m] (D, N).
+
+    Beside a straight wire the field changes across it on the scale of the distance d to its axis, but along
+    it only as the current does and as the ends come nearer: along a direction at angle phi to the wire the
+    scale is d / sin(phi), at most the distance to either end of the wire; beyond an end it is d. The smallest
+    over the model's wires (common practice: the near field of a line current, 1/d across it; its current
+    changes along it on the scale of a wavelength, which the caller's cap in wavelengths keeps)."""
+    pts = np.asarray(points_m, float).reshape(-1, 3)
+    out = np.full((len(directions), len(pts)), np.inf)
+    wires = exclusion_m(model)
+    tips = np.array([p for a, b, _ in wires for p in (a, b)])
+    for a, b, r in wires:
+        ab = b - a
+        length = float(np.linalg.norm(ab))
+        w = ab / length
+        t = (pts - a) @ w
+        d = np.linalg.norm(pts - (a + np.clip(t, 0.0, length)[:, None] * w), axis=1)
+        ends = np.full(len(pts), np.inf)
+        for p in (a, b):
+            if (np.linalg.norm(tips - p, axis=1) <= r).sum() > 1:  # joined to another wire
+                ends = np.minimum(ends, np.linalg.norm(pts - p, axis=1))
+        beside = (t > 0.0) & (t < length)
+        for k, u in enumerate(directions):
+            sine = float(np.linalg.norm(np.cross(u, w)))
+            along = np.minimum(d / sine, ends) if sine > 1e-9 else ends
+            out[k] = np.minimum(out[k], np.where(beside, along, d))
+    return out
+
+
+def _block_min(a: np.ndarray) -> np.ndarray:
+    """The smallest value of each H_BLOCK x H_BLOCK block of a plan array (the last blocks may be smaller)."""
+    ny, nx = a.shape
+    pad = np.pad(a, ((0, -ny % H_BLOCK), (0, -nx % H_BLOCK)), constant_values=np.inf)
+    return pad.reshape(pad.shape[0] // H_BLOCK, H_BLOCK, pad.shape[1] // H_BLOCK, H_BLOCK).min(axis=(1, 3))
+
+
 def default_h_method(ground_: Ground) -> str:
     return "curl" if ground_.finite else "nh"
 
@@ -937,24 +974,31 @@ class SampledH:
         sheet = Sheet.of(sheet) if isinstance(sheet, Lattice) else sheet
         self.model, self.sheet, self.power_w, self.jobs, self.progress = model, sheet, power_w, jobs, progress
         nx, ny, nz = sheet.nx, sheet.ny, sheet.nz
-        # a block takes stride k when every node its points interpolate between (k beyond the block on each
-        # side) is at least k x spacing / H_NODE_SCALE from every wire, at every height
+        # the scale on which the field changes along each sheet axis and in height (wire_scales_m); a block takes
+        # strides (kx, ky) when, over the block widened by (kx, ky) columns (the nodes its points interpolate
+        # from), kx x step_x <= H_NODE_SCALE x the scale along x and ky x step_y likewise, at every height, and
+        # both are <= H_NODE_WAVELENGTHS wavelengths; of the pairs allowed, the one with the fewest nodes
         iy, ix = np.divmod(np.arange(nx * ny), nx)
-        d = wire_distance_m(model, sheet.points(iy, ix)).reshape(ny, nx, nz).min(axis=2)
+        steps = (float(np.linalg.norm(sheet.step_x_m)), float(np.linalg.norm(sheet.step_y_m)))
+        along = [np.asarray(sheet.step_x_m) / steps[0], np.asarray(sheet.step_y_m) / steps[1], np.array([0.0, 0.0, 1.0])]
+        scale = [v.reshape(ny, nx, nz).min(axis=2) for v in wire_scales_m(model, sheet.points(iy, ix), along)]
+        cap = H_NODE_WAVELENGTHS * model.wavelength_m
         nby, nbx = -(-ny // H_BLOCK), -(-nx // H_BLOCK)
-        s = np.ones((nby, nbx), int)
-        for k in H_STRIDES[1:]:
-            near = ndimage.minimum_filter(d, size=2 * k + 1, mode="nearest")
-            block = np.array([[near[by * H_BLOCK: (by + 1) * H_BLOCK, bx * H_BLOCK: (bx + 1) * H_BLOCK].min()
-                               for bx in range(nbx)] for by in range(nby)])
-            reach = np.minimum(H_NODE_SCALE * block, H_NODE_WAVELENGTHS * model.wavelength_m)
-            s[k * sheet.spacing_m <= reach] = k
-        self.stride = s
+        sx, sy = np.ones((nby, nbx), int), np.ones((nby, nbx), int)
+        for kx in H_STRIDES:
+            for ky in H_STRIDES:
+                ok = np.ones((nby, nbx), bool)
+                for k, step, sc in ((kx, steps[0], scale[0]), (ky, steps[1], scale[1])):
+                    if k > 1:
+                        near = _block_min(ndimage.minimum_filter(sc, size=(2 * ky + 1, 2 * kx + 1), mode="nearest"))
+                        ok &= k * step <= np.minimum(H_NODE_SCALE * near, cap)
+                better = ok & (kx * ky > sx * sy)
+                sx[better], sy[better] = kx, ky
+        self.stride_x, self.stride_y = sx, sy
         # a node column between nodes takes curl E at every other height (and the top one) and H's components by
-        # cubic polynomials in height between them, where two height steps are within the same reach as a stride
+        # cubic polynomials in height between them, where two height steps are within the same reach in height
         plan_sheet = sheet.step_x_m[1] == 0 and sheet.step_x_m[2] == 0 and sheet.step_y_m[2] == 0
-        self._z_sparse = (plan_sheet and nz >= 4) & (
-            2 * sheet.dz_m <= np.minimum(H_NODE_SCALE * d, H_NODE_WAVELENGTHS * model.wavelength_m))
+        self._z_sparse = (plan_sheet and nz >= 4) & (2 * sheet.dz_m <= np.minimum(H_NODE_SCALE * scale[2], cap))
         self._e: dict[int, np.ndarray] = {}  # node (iy * nx + ix) -> rms E (nz, 3)
         self._h: dict[int, np.ndarray] = {}  # ... -> rms H (nz, 3)
         self._full: set[int] = set()  # nodes whose H was computed at every height
@@ -1042,21 +1086,24 @@ class SampledH:
         nx, ny, nz = self.sheet.nx, self.sheet.ny, self.sheet.nz
         if not len(iy):
             return np.zeros((0, nz, 3), complex), np.zeros((0, nz, 3), complex)
-        s = self.stride[iy // H_BLOCK, ix // H_BLOCK]
+        sx, sy = self.stride_x[iy // H_BLOCK, ix // H_BLOCK], self.stride_y[iy // H_BLOCK, ix // H_BLOCK]
         ky, wy = np.empty((len(iy), 4), int), np.empty((len(iy), 4))
         kx, wx = np.empty((len(iy), 4), int), np.empty((len(iy), 4))
-        for st in np.unique(s):
-            on = s == st
+        for st in np.unique(sy):
+            on = sy == st
             ky[on], wy[on] = (a[iy[on]] for a in _axis_table(ny, int(st)))
+        for st in np.unique(sx):
+            on = sx == st
             kx[on], wx[on] = (a[ix[on]] for a in _axis_table(nx, int(st)))
-        own = ((wy[:, 0] == 1.0) & (ky[:, 0] == iy) & (wx[:, 0] == 1.0) & (kx[:, 0] == ix)) | (s == 1) | exact
+        reference = (sx == 1) & (sy == 1)
+        own = ((wy[:, 0] == 1.0) & (ky[:, 0] == iy) & (wx[:, 0] == 1.0) & (kx[:, 0] == ix)) | reference | exact
         terms = [(a, b) for a in range(4) for b in range(4)]
         need = np.stack([np.where(wy[:, a] * wx[:, b] != 0, ky[:, a] * nx + kx[:, b], -1) for a, b in terms], axis=1)
         rest = np.flatnonzero(~own)
         keys = need[rest][need[rest] >= 0]
         # the nodes and E between them in one batch
         nf = self._nodes(np.concatenate([keys, (iy * nx + ix)[own]]),
-                         np.concatenate([np.zeros(len(keys), bool), (s == 1)[own]]),
+                         np.concatenate([np.zeros(len(keys), bool), reference[own]]),
                          np.concatenate([np.zeros(len(keys), bool), np.full(int(own.sum()), exact)]),
                          self.sheet.where(iy[rest], ix[rest]) if len(rest) else None)
         e = np.empty((len(iy), nz, 3), complex)

@@ -91,7 +91,7 @@ def _sampled_everywhere(m, lat, power_w):
 def test_nodes_are_kept_and_the_order_of_points_does_not_matter():
     m = _model(lambda: antennas.dipole("d", (0, 0), 6.0, resonant_mhz=14.2), 14.2)
     sampler, iy, ix, e1, h1 = _sampled_everywhere(m, engine.Lattice((-6.0, -6.0, 1.0), (0.5, 0.5, 0.5), (25, 25, 2)), 10.0)
-    assert sampler.stride.max() > 1
+    assert max(sampler.stride_x.max(), sampler.stride_y.max()) > 1
     nodes = sampler.node_columns
     rng = np.random.default_rng(1)
     k = rng.permutation(len(iy))[:100]
@@ -113,7 +113,7 @@ def test_node_columns_between_nodes_take_every_other_height():
     err = np.abs(got - mag) / mag
     assert np.max(err[steady]) <= BOUND
     # a node interpolated in height is not "computed"; asked exactly, it is, and reads the reference there
-    k = next(int(i) for i in range(len(iy)) if sampler._z_sparse[iy[i], ix[i]] and sampler.stride[iy[i] // 4, ix[i] // 4] > 1
+    k = next(int(i) for i in range(len(iy)) if sampler._z_sparse[iy[i], ix[i]] and sampler.stride_x[iy[i] // 4, ix[i] // 4] * sampler.stride_y[iy[i] // 4, ix[i] // 4] > 1
              and iy[i] % 8 == 0 and ix[i] % 8 == 0)
     assert not sampler.computed(iy[[k]], ix[[k]])[0]
     _, h_exact = sampler.fields(iy[[k]], ix[[k]], exact=True)
@@ -253,3 +253,31 @@ def test_a_checked_node_near_a_wire_keeps_the_central_curl():
     right = engine._curl_h([(pl - centre) / half for pl, _ in shifts], m)
     apart = engine.rms_magnitude(right - left) / engine.rms_magnitude(ref.h_a_per_m)
     assert apart[steady].max() > 2 * engine.H_STEADY
+
+
+def test_wire_scales_follow_the_wire():
+    # geometry of a line current (common practice: its near field changes across it on the scale of the distance
+    # to it, along it only as its current and its joined ends do; past an open end on the distance to the end)
+    def model(*wires):
+        return engine.Model((antennas.Structure("w", tuple(antennas.Wire(a, b, 0.002, n) for a, b, n in wires)),), 0,
+                            14.2, engine.ground("average"))
+
+    north = ((0.0, 0.0, 1.0), (0.0, 10.0, 1.0), 9)
+    x, y, diag = np.eye(3)[0], np.eye(3)[1], np.array([1.0, 1.0, 0.0]) / np.sqrt(2)
+    pts = np.array([[1.0, 5.0, 1.0], [0.0, 12.0, 1.0]])
+    sc = engine.wire_scales_m(model(north), pts, [x, y, diag])
+    np.testing.assert_allclose(sc[:, 0], [1.0, np.inf, np.sqrt(2)])  # beside: open ends do not limit along it
+    np.testing.assert_allclose(sc[:, 1], [2.0, 2.0, 2.0])  # past an open end: the distance to it, every way
+    # a second wire joined at (0, 10, 1), running east: on the west side the joint limits the scale along the first
+    sc = engine.wire_scales_m(model(north, ((0.0, 10.0, 1.0), (5.0, 10.0, 1.0), 5)), np.array([[-1.0, 5.0, 1.0]]), [y])
+    assert sc[0, 0] == pytest.approx(np.hypot(1.0, 5.0))
+
+
+def test_nodes_are_spaced_along_a_low_wire_more_widely_than_across_it():
+    # a wire 0.3 m up, running north (y): blocks beside it take nodes farther apart along y than along x
+    m = _model(lambda: antennas.dipole("d", (0, 0), 0.3, resonant_mhz=14.2), 14.2)
+    lat = engine.Lattice((-4.0, -5.0, 0.5), (0.25, 0.25, 0.4), (33, 41, 4))
+    sampler = engine.SampledH(m, lat, 100.0)
+    beside = (sampler.stride_x == 1) & (sampler.stride_y > 1)
+    assert beside.any()
+    assert not ((sampler.stride_y == 1) & (sampler.stride_x > 1)).any()
