@@ -533,21 +533,18 @@ def wire_scales_m(model: Model, points_m: np.ndarray, directions: Sequence[np.nd
     it only as the current does and as the ends come nearer: along a direction at angle phi to the wire the
     scale is d / sin(phi), at most the distance to either end of the wire; beyond an end it is d. The smallest
     over the model's wires (common practice: the near field of a line current, 1/d across it; its current
-    changes along it on the scale of a wavelength, which the caller's cap in wavelengths keeps)."""
+    changes along it on the scale of a wavelength, which the caller's cap in wavelengths keeps). Open ends count
+    as joints do: measured, the field beside a radial 1.3 m from its open tip changed on the scale of the distance
+    to the tip (H interpolated as if it did not was 2.6 % off the reference)."""
     pts = np.asarray(points_m, float).reshape(-1, 3)
     out = np.full((len(directions), len(pts)), np.inf)
-    wires = exclusion_m(model)
-    tips = np.array([p for a, b, _ in wires for p in (a, b)])
-    for a, b, r in wires:
+    for a, b, _ in exclusion_m(model):
         ab = b - a
         length = float(np.linalg.norm(ab))
         w = ab / length
         t = (pts - a) @ w
         d = np.linalg.norm(pts - (a + np.clip(t, 0.0, length)[:, None] * w), axis=1)
-        ends = np.full(len(pts), np.inf)
-        for p in (a, b):
-            if (np.linalg.norm(tips - p, axis=1) <= r).sum() > 1:  # joined to another wire
-                ends = np.minimum(ends, np.linalg.norm(pts - p, axis=1))
+        ends = np.minimum(np.linalg.norm(pts - a, axis=1), np.linalg.norm(pts - b, axis=1))
         beside = (t > 0.0) & (t < length)
         for k, u in enumerate(directions):
             sine = float(np.linalg.norm(np.cross(u, w)))
@@ -962,7 +959,7 @@ class SampledH:
       The components, not |H|: the magnitude has a kink at a null of the field (measured: |H| interpolated
       read 16 times the reference on a vertical's axis); the eighth-wavelength limit keeps the phase's turn
       between nodes within what a cubic follows (error (k h)^4 x 9/384: 0.9 % at lambda/8).
-    - A column whose interpolation meets a masked node is a node of its own.
+    - A point whose interpolation meets a masked node takes the reference curl at that point alone.
 
     Nodes are kept between calls, so an adaptive lattice asking round after round pays for each node once.
     Accuracy against the reference: the module docstring, ``benchmarks/engine.py`` and
@@ -1124,14 +1121,14 @@ class SampledH:
         for k in np.flatnonzero(own):
             key = int(iy[k] * nx + ix[k])
             e[k], h[k] = self._e[key], self._h[key]
-        # a point whose interpolation met a masked node: a node of its own
+        # a height whose interpolation met a masked node (beside a wire's exclusion): H by the reference curl at
+        # that point alone (its E is computed; the column is not a node, so its H is not "computed" in full)
         live = np.isfinite(e).all(axis=2)
-        lost = np.flatnonzero((live & ~np.isfinite(h).all(axis=2)).any(axis=1))
-        if len(lost):
-            keys_ = iy[lost] * nx + ix[lost]
-            self._nodes(keys_, np.ones(len(lost), bool), np.ones(len(lost), bool))
-            for k, key in zip(lost, keys_, strict=True):
-                e[k], h[k] = self._e[int(key)], self._h[int(key)]
+        rows, ks = np.nonzero(live & ~np.isfinite(h).all(axis=2))
+        if len(rows):
+            pts = self.sheet.base(iy[rows], ix[rows]) + np.outer(ks, (0.0, 0.0, self.sheet.dz_m))
+            h[rows, ks] = near_fields_batch(self.model, [(pts, "curl")], self.power_w, self.jobs, CURL_STEP_M,
+                                            self.progress)[0].h_a_per_m
         h[~np.isfinite(e).all(axis=2)] = np.nan  # masked, as E
         return e, h
 

@@ -257,20 +257,15 @@ def test_a_checked_node_near_a_wire_keeps_the_central_curl():
 
 def test_wire_scales_follow_the_wire():
     # geometry of a line current (common practice: its near field changes across it on the scale of the distance
-    # to it, along it only as its current and its joined ends do; past an open end on the distance to the end)
-    def model(*wires):
-        return engine.Model((antennas.Structure("w", tuple(antennas.Wire(a, b, 0.002, n) for a, b, n in wires)),), 0,
-                            14.2, engine.ground("average"))
-
-    north = ((0.0, 0.0, 1.0), (0.0, 10.0, 1.0), 9)
+    # to it, along it only as its current does and its ends come nearer; past an end on the distance to the end)
+    north = antennas.Structure("w", (antennas.Wire((0.0, 0.0, 1.0), (0.0, 10.0, 1.0), 0.002, 9),))
+    m = engine.Model((north,), 0, 14.2, engine.ground("average"))
     x, y, diag = np.eye(3)[0], np.eye(3)[1], np.array([1.0, 1.0, 0.0]) / np.sqrt(2)
-    pts = np.array([[1.0, 5.0, 1.0], [0.0, 12.0, 1.0]])
-    sc = engine.wire_scales_m(model(north), pts, [x, y, diag])
-    np.testing.assert_allclose(sc[:, 0], [1.0, np.inf, np.sqrt(2)])  # beside: open ends do not limit along it
-    np.testing.assert_allclose(sc[:, 1], [2.0, 2.0, 2.0])  # past an open end: the distance to it, every way
-    # a second wire joined at (0, 10, 1), running east: on the west side the joint limits the scale along the first
-    sc = engine.wire_scales_m(model(north, ((0.0, 10.0, 1.0), (5.0, 10.0, 1.0), 5)), np.array([[-1.0, 5.0, 1.0]]), [y])
-    assert sc[0, 0] == pytest.approx(np.hypot(1.0, 5.0))
+    pts = np.array([[1.0, 5.0, 1.0], [0.0, 12.0, 1.0], [0.5, 9.0, 1.0]])
+    sc = engine.wire_scales_m(m, pts, [x, y, diag])
+    np.testing.assert_allclose(sc[:, 0], [1.0, np.hypot(1.0, 5.0), np.sqrt(2)])  # beside, mid-way
+    np.testing.assert_allclose(sc[:, 1], [2.0, 2.0, 2.0])  # past an end: the distance to it, every way
+    np.testing.assert_allclose(sc[:, 2], [0.5, np.hypot(0.5, 1.0), 0.5 * np.sqrt(2)])  # beside, near an end
 
 
 def test_nodes_are_spaced_along_a_low_wire_more_widely_than_across_it():
