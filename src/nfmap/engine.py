@@ -29,14 +29,15 @@ reference stays.
 H for about the cost of E
 -------------------------
 Six E evaluations a point make H the whole cost of an assessment. :class:`SampledH` computes the
-reference at every point only near the wires; elsewhere at nodes every s-th point (s = 2, 4, 8, by the
-distance to the wires and at most an eighth of a wavelength apart), checked for a Sommerfeld step inside
+reference at every point only near the wires; elsewhere at nodes every s-th point along each axis (s = 1,
+2, 4, 8, by the scale on which the field changes along it: the distance to a wire across it, farther along
+it; at most an eighth of a wavelength apart), checked for a Sommerfeld step inside
 the stencil (then read by the median of slopes, which a step cannot move), and interpolates H's
 components between nodes by cubic Lagrange polynomials; a node column takes curl E at every other height
 where the wires are as far away again, H cubic in height between; E is computed at every point. Against the
 reference where it is steady, on a 0.3 m lattice (30 m square, 9 heights) around each of
 ``benchmarks/engine.py``'s antennas: within 1.2 % everywhere, in the time of 1.2 (dipole at 10 m),
-1.4 (beam at 12 m; end-fed wire) and 2.3 (ground-mounted vertical, radials across the lattice) E evaluations
+1.3 (beam at 12 m; end-fed wire) and 2.1 (ground-mounted vertical, radials across the lattice) E evaluations
 a point; within 2 % on every example wherever the ratio is 0.05 or more (``tests/engine/test_sampled_h.py``).
 
 References
@@ -942,13 +943,14 @@ class Sheet:
 class SampledH:
     """E and H on a sheet of columns (a lattice's plan, or a vertical section) with curl E only at nodes.
 
-    The sheet is cut into blocks of ``H_BLOCK`` x ``H_BLOCK`` columns. A block takes the largest stride s of
-    ``H_STRIDES`` for which s x spacing <= ``H_NODE_SCALE`` x d and <= ``H_NODE_WAVELENGTHS`` wavelengths,
-    d the smallest distance to a wire over the block widened by s columns on each side (the nodes its points
-    interpolate from), at every height. Its nodes are the columns at multiples of s (global indices, so that
-    blocks share them) and the last column.
+    The sheet is cut into blocks of ``H_BLOCK`` x ``H_BLOCK`` columns. A block takes strides (sx, sy) of
+    ``H_STRIDES``, the pair with the fewest nodes for which each stride x its step <= ``H_NODE_SCALE`` x the
+    scale on which the field changes along that axis (:func:`wire_scales_m`: the distance to a wire across it,
+    farther along it) and <= ``H_NODE_WAVELENGTHS`` wavelengths, the smallest over the block widened by
+    (sx, sy) columns (the nodes its points interpolate from), at every height. Its nodes are the columns at
+    multiples of sx and sy (global indices, so that blocks share them) and the last column.
 
-    - s = 1, near wires: every column is a node, E and H the reference (curl E, :func:`near_fields` "curl").
+    - sx = sy = 1, near wires: every column is a node, E and H the reference (curl E, :func:`near_fields` "curl").
     - A node between nodes is "checked": E at the node itself too. A smooth field's Laplacian over the seven
       points is -k^2 E however strongly it curves beside a wire; a Sommerfeld step inside the stencil (which
       would spread as a spike over the node's neighbourhood) leaves a residual that bounds how far it moved

@@ -393,13 +393,14 @@ def _assumptions(a) -> list[str]:
         "Sommerfeld interpolation steps E by up to about 1 % between its cells; where the 2 cm stencil straddles "
         "a step, H shows an isolated spike (a speck on a map, reading high or low)."
         + (" Within a few metres of every wire H is computed so at every point; farther out at nodes (every 2nd to "
-           "8th lattice point, closer where a wire is nearer, at most an eighth of a wavelength apart), each checked "
+           "8th lattice point along each axis, closer where a wire is nearer across it, at most an eighth of a "
+           "wavelength apart), each checked "
            "for a step inside its stencil and then read by a step-proof one, computed at every other body-line "
            "height where the wires are as far away again (cubic in height between), and interpolated between them by "
            "cubic polynomials; E is computed at every point. Against H computed at every point: within 2 % wherever the "
            "ratio is 0.05 or more (tested on the examples; --exhaustive computes every point). Wherever H was "
            "not computed (between nodes, or between the points NEC evaluated) it is judged 2 % high, the top of that "
-           "bound, and each area's worst point has its H computed."
+           "bound, and each area's worst point (and each group's worst combined point) has its H computed."
            if a.h_method == "sampled" else "")
         if a.h_method in ("curl", "sampled") else "H is NEC's near-H field (exact for free space and perfect ground).",
         "Masked: a plan point whose body line comes within the exclusion distance of a wire (10 radii or half a "
