@@ -37,7 +37,7 @@ components between nodes by cubic Lagrange polynomials; a node column takes curl
 where the wires are as far away again, H cubic in height between; E is computed at every point. Against the
 reference where it is steady, on a 0.3 m lattice (30 m square, 9 heights) around each of
 ``benchmarks/engine.py``'s antennas: within 1.2 % everywhere, in the time of 1.2 (dipole at 10 m),
-1.3 (beam at 12 m; end-fed wire) and 2.1 (ground-mounted vertical, radials across the lattice) E evaluations
+1.4 (beam at 12 m; end-fed wire) and 2.1 (ground-mounted vertical, radials across the lattice) E evaluations
 a point; within 2 % on every example wherever the ratio is 0.05 or more (``tests/engine/test_sampled_h.py``).
 
 References
