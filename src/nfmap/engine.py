@@ -918,10 +918,6 @@ class Sheet:
         (dx, dy, dz), (nx, ny, nz) = lattice.step_m, lattice.shape
         return cls(lattice.origin_m, (dx, 0.0, 0.0), (0.0, dy, 0.0), nx, ny, nz, dz)
 
-    @property
-    def spacing_m(self) -> float:
-        return float(max(np.linalg.norm(self.step_x_m), np.linalg.norm(self.step_y_m)))
-
     def base(self, iy: np.ndarray, ix: np.ndarray) -> np.ndarray:
         """The lowest point (k = 0) of each column (N, 3)."""
         return (np.asarray(self.origin_m) + np.outer(ix, self.step_x_m) + np.outer(iy, self.step_y_m)).reshape(-1, 3)
