@@ -59,11 +59,12 @@ from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, field, replace
 
 import numpy as np
-from scipy import constants, ndimage
 
 from antennas import C0_M_PER_S, Structure, segment_at
 
-MU0_H_PER_M = constants.mu_0
+# vacuum permeability, CODATA 2022 (scipy.constants.mu_0, tested); a literal so that worker processes, which
+# import this module, need not import scipy (a fifth of a second each)
+MU0_H_PER_M = 1.25663706127e-6
 CURL_STEP_M = 0.02
 CHUNK_POINTS = 2000
 LATTICE_CHUNK_POINTS = 8000
@@ -977,6 +978,8 @@ class SampledH:
         steps = (float(np.linalg.norm(sheet.step_x_m)), float(np.linalg.norm(sheet.step_y_m)))
         along = [np.asarray(sheet.step_x_m) / steps[0], np.asarray(sheet.step_y_m) / steps[1], np.array([0.0, 0.0, 1.0])]
         scale = [v.reshape(ny, nx, nz).min(axis=2) for v in wire_scales_m(model, sheet.points(iy, ix), along)]
+        from scipy import ndimage  # here: worker processes never build a sampler
+
         cap = H_NODE_WAVELENGTHS * model.wavelength_m
         nby, nbx = -(-ny // H_BLOCK), -(-nx // H_BLOCK)
         sx, sy = np.ones((nby, nbx), int), np.ones((nby, nbx), int)

@@ -316,3 +316,10 @@ def test_columns_are_evaluated_from_their_lowest_live_height():
     live = ~got.masked
     np.testing.assert_allclose(got.e_v_per_m[live], one.e_v_per_m[live], rtol=1e-9)
     np.testing.assert_allclose(got.h_a_per_m[live], one.h_a_per_m[live], rtol=1e-9)
+
+
+def test_vacuum_permeability_is_codata():
+    # engine keeps mu0 as a literal (workers need not import scipy); the reference library's CODATA value
+    import scipy.constants
+
+    assert engine.MU0_H_PER_M == pytest.approx(scipy.constants.mu_0, rel=1e-12)
