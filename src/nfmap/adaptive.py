@@ -73,29 +73,33 @@ def settle_worst(got: Refined, evaluate, ratio, labels: np.ndarray, per_round: i
     iy_all, ix_all = np.indices(done.shape)
     for round_ in range(rounds):
         r = ratio({k: v.ravel() for k, v in values.items()}, iy_all.ravel(), ix_all.ravel()).reshape(done.shape)
-        pick_y, pick_x = [], []
-        for lab in np.unique(labels[labels > -2]):
-            inside = (labels == lab) & np.isfinite(r)
-            if not inside.any():
-                continue
-            worst = np.max(r[inside])
-            if done[inside & (r == worst)].any():
-                continue
-            settled = r[inside & done]
-            above = inside & ~done & (r > (settled.max() if settled.size else -np.inf))
-            cand = np.flatnonzero(above.ravel())
-            top = cand[np.argsort(r.ravel()[cand])[::-1][: per_round << round_]]
-            pick_y.append(top // done.shape[1])
-            pick_x.append(top % done.shape[1])
-        if not pick_y:
+        flat = unsettled(r, done, labels, per_round << round_)
+        if not len(flat):
             break
-        iy, ix = np.concatenate(pick_y), np.concatenate(pick_x)
+        iy, ix = np.divmod(flat, done.shape[1])
         new = evaluate(iy, ix)
         for name, v in new.items():
             values[name][iy, ix] = v
         done[iy, ix] = True
     evaluated = got.evaluated | done
     return Refined(values, evaluated, int(evaluated.sum()), done)
+
+
+def unsettled(r: np.ndarray, done: np.ndarray, labels: np.ndarray, most: int) -> np.ndarray:
+    """Flat indices of the points to evaluate next so that each labelled region's worst of ``r`` (NaN: masked)
+    is a final one (``done``): in a region whose worst is not final, its highest points not final that read above
+    its highest final one, at most ``most`` a region."""
+    out = []
+    for lab in np.unique(labels[labels > -2]):
+        inside = (labels == lab) & np.isfinite(r)
+        if not inside.any():
+            continue
+        if done[inside & (r == np.max(r[inside]))].any():
+            continue
+        settled = r[inside & done]
+        cand = np.flatnonzero((inside & ~done & (r > (settled.max() if settled.size else -np.inf))).ravel())
+        out.append(cand[np.argsort(r.ravel()[cand])[::-1][:most]])
+    return np.concatenate(out) if out else np.zeros(0, int)
 
 
 def inverse_square_trend(distance_m: np.ndarray, floor_m: float) -> np.ndarray:

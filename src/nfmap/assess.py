@@ -485,9 +485,7 @@ def _ring_ratio(site: Site, workers: engine.Workers, stride: int = 1) -> float:
             nf = engine.near_fields(model_for(site, t.name, heading_deg=heading), pts, t.envelope_power_w, jobs=workers)
             e = engine.rms_magnitude(nf.e_v_per_m).reshape(len(px), len(heights)).T
             h = engine.rms_magnitude(nf.h_a_per_m).reshape(len(px), len(heights)).T
-            e_b, h_b = averaging.body_reduce(e, site.grid.spatial), averaging.body_reduce(h, site.grid.spatial)
-            e_p, h_p = averaging.spatial_peak(e), averaging.spatial_peak(h)
-            for r, _ in t.check_ratios(site.standard, "public", e_b, h_b, e_p, h_p).values():
+            for r, _ in t.check_ratios(site.standard, "public", *body_fields(site, e, h)).values():
                 worst = np.fmax(worst, np.nan_to_num(r))
         return worst
 
@@ -559,9 +557,7 @@ def envelope_by_radius(site: Site, model: engine.Model, mast_m, radii: np.ndarra
     shape = (len(radii), len(phi), len(z_m))
     e = np.moveaxis(engine.rms_magnitude(nf.e_v_per_m).reshape(shape), 2, 0)  # (nz, nr, nphi)
     h = np.moveaxis(engine.rms_magnitude(nf.h_a_per_m).reshape(shape), 2, 0)
-    return [np.max(v, axis=1)  # over azimuth; NaN (masked anywhere on the circle) stays NaN
-            for v in (averaging.body_reduce(e, site.grid.spatial), averaging.body_reduce(h, site.grid.spatial),
-                      averaging.spatial_peak(e), averaging.spatial_peak(h))]
+    return [np.max(v, axis=1) for v in body_fields(site, e, h)]  # over azimuth; masked anywhere stays NaN
 
 
 def at_radius(per_r: list[np.ndarray], radii: np.ndarray, r_m: np.ndarray) -> list[np.ndarray]:
@@ -634,12 +630,7 @@ def _level_maps(site, pl, lats, model, t, workers, progress, exhaustive=True):
             nx, ny, nz = lat.shape
             e_z = engine.rms_magnitude(nf.e_v_per_m).reshape(nz, ny, nx)
             h_z = engine.rms_magnitude(nf.h_a_per_m).reshape(nz, ny, nx)
-            reduced = (
-                averaging.body_reduce(e_z, site.grid.spatial),
-                averaging.body_reduce(h_z, site.grid.spatial),
-                averaging.spatial_peak(e_z),
-                averaging.spatial_peak(h_z),
-            )
+            reduced = body_fields(site, e_z, h_z)
             points += lat.size
             final = None
         else:
@@ -658,6 +649,13 @@ def _level_maps(site, pl, lats, model, t, workers, progress, exhaustive=True):
 
 
 FIELDS = ("e", "h", "e_pk", "h_pk")
+
+
+def body_fields(site: Site, e: np.ndarray, h: np.ndarray) -> tuple[np.ndarray, ...]:
+    """|E| and |H| along body lines (heights first) reduced by the site's scheme, and their spatial peaks:
+    the four field maps every check takes (``FIELDS``)."""
+    return (averaging.body_reduce(e, site.grid.spatial), averaging.body_reduce(h, site.grid.spatial),
+            averaging.spatial_peak(e), averaging.spatial_peak(h))
 
 
 def _adaptive_level(site: Site, pl: Plan, lv: Level, model: engine.Model, t, workers, progress):
@@ -686,8 +684,7 @@ def _adaptive_level(site: Site, pl: Plan, lv: Level, model: engine.Model, t, wor
             e_c, h_c = nf.e_v_per_m, nf.h_a_per_m
         e = engine.rms_magnitude(e_c).reshape(len(iy), len(heights)).T
         h = engine.rms_magnitude(h_c).reshape(len(iy), len(heights)).T
-        return dict(zip(FIELDS, (averaging.body_reduce(e, site.grid.spatial), averaging.body_reduce(h, site.grid.spatial),
-                                 averaging.spatial_peak(e), averaging.spatial_peak(h)), strict=True))
+        return dict(zip(FIELDS, body_fields(site, e, h), strict=True))
 
     def ratio(v: dict[str, np.ndarray], iy: np.ndarray, ix: np.ndarray) -> np.ndarray:
         per, _ = tier_ratios(site, t, occupational[iy, ix], *(v[k] for k in FIELDS))
@@ -1089,19 +1086,9 @@ def settle_groups(site: Site, pl: Plan, results: list[TransmissionResult], worke
             picks = []
             for k, (lv, judged) in enumerate(zip(pl.levels, _group_levels(site, pl, by_name, g), strict=True)):
                 done = np.logical_and.reduce([_final_of(by_name[n].levels[k]) for n in g])
-                r = judged.ratio
-                labels = np.where(lv.place & np.isfinite(r), lv.area_index, -2)
-                chosen = []
-                for lab in np.unique(labels[labels > -2]):
-                    inside = labels == lab
-                    worst = np.max(r[inside])
-                    if done[inside & (r == worst)].any():
-                        continue
-                    settled = r[inside & done]
-                    above = np.flatnonzero((inside & ~done & (r > (settled.max() if settled.size else -np.inf))).ravel())
-                    chosen.append(above[np.argsort(r.ravel()[above])[::-1][: per_round << round_]])
-                if chosen:
-                    picks.append((k, np.concatenate(chosen)))
+                flat = adaptive.unsettled(judged.ratio, done, np.where(lv.place, lv.area_index, -2), per_round << round_)
+                if len(flat):
+                    picks.append((k, flat))
             if not picks:
                 break
             for n in g:
@@ -1127,10 +1114,8 @@ def _computed_at(site: Site, pl: Plan, res: TransmissionResult, picks: list[tupl
                                np.tile(lv.floor_m + heights, len(flat))])
         e, h, _, _ = point_fields(site, t, pts, workers)
         e, h = e.reshape(len(flat), len(heights)).T, h.reshape(len(flat), len(heights)).T
-        new = (averaging.body_reduce(e, site.grid.spatial), averaging.body_reduce(h, site.grid.spatial),
-               averaging.spatial_peak(e), averaging.spatial_peak(h))
         fields = [np.array(f) for f in (m.e_v_per_m, m.h_a_per_m, m.e_peak_v_per_m, m.h_peak_a_per_m)]
-        for f, v in zip(fields, new, strict=True):
+        for f, v in zip(fields, body_fields(site, e, h), strict=True):
             f[iy, ix] = v
         at = np.zeros(m.ratio.shape, bool)
         at[iy, ix] = True

@@ -23,7 +23,6 @@ import shapely.affinity
 import antennas
 
 from . import assess, engine
-from .exposure import averaging
 from .site import Site, SiteError, build
 
 HEIGHT_KEY = {"dipole": "height_m", "beam": "height_m", "vertical": "base_height_m", "end-fed": "feed_height_m"}
@@ -192,9 +191,7 @@ def _scales(site: Site, pl: assess.Plan, trial: Site, antenna: str, t, idx: np.n
         nxo, nyo, nz = lat.shape
         e = engine.rms_magnitude(nf.e_v_per_m).reshape(nz, nyo, nxo)
         h = engine.rms_magnitude(nf.h_a_per_m).reshape(nz, nyo, nxo)
-        fields.append(((oy0, ox0), (averaging.body_reduce(e, site.grid.spatial),
-                                    averaging.body_reduce(h, site.grid.spatial),
-                                    averaging.spatial_peak(e), averaging.spatial_peak(h))))
+        fields.append(((oy0, ox0), assess.body_fields(site, e, h)))
     ceilings, masked = [], []
     iy = np.arange(ny)[:, None]
     ix = np.arange(nx)[None, :]
