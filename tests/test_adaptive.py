@@ -77,7 +77,7 @@ def test_cells_without_a_judged_point_take_the_drawn_tolerance():
     exact, r = f**2, got.values["e"] ** 2
     west, east = np.s_[:, :64], np.s_[:, 72:]  # clear of the cells that straddle the boundary
     assert np.all(np.abs(r[west] - exact[west]) <= 2 * adaptive.TOLERANCE * exact[west] + adaptive.FLOOR)
-    assert np.all(np.abs(r[east] - exact[east]) <= 2 * adaptive.DRAWN_TOLERANCE * exact[east] + adaptive.FLOOR)
+    assert np.all(np.abs(r[east] - exact[east]) <= 2 * adaptive.DRAWN_TOLERANCE * exact[east] + adaptive.DRAWN_FLOOR)
     for level in LEVELS:  # drawn levels are resolved everywhere
         assert np.array_equal(exact >= level, r >= level)
 

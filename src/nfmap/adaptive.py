@@ -35,8 +35,9 @@ import numpy as np
 
 COARSE_M = 4.0  # the coarse spacing aimed at [m]
 TOLERANCE = 0.005  # interpolated ratio within 0.5 % of the evaluated one at the centres ...
-FLOOR = 2e-4  # ... plus this (2 % of a ratio of 0.01)
+FLOOR = 1e-3  # ... plus this: 1 % of the lowest level drawn (0.1); a ratio far below it needs no fine spacing
 DRAWN_TOLERANCE = 0.05  # ... or 5 % in cells where nothing is judged (only drawn: a not-accessible area, a section)
+DRAWN_FLOOR = 0.005  # ... plus this (5 % of the lowest level drawn, 0.1)
 EDGE_FLOOR = 0.05  # area, line and floor edges are refined where the ratio reaches this
 MAX_ROUNDS = 4
 WIRE_REACH_M = 1.0  # plan points this close to a wire (or two spacings, if more) are evaluated in full
@@ -261,8 +262,9 @@ def _misses(values: Values, rmap, done, boxes: list, ratio, levels, trend, judge
         c = [np.log(np.maximum(v[yy, xx], 1e-300)) - trend[yy, xx] for yy, xx in corners]
         guess[name] = np.exp(_blend(c, ty, tx) + trend[iy, ix])
     r = rmap[iy, ix]
-    tol = np.array([TOLERANCE if _count(judged_sum, box) else DRAWN_TOLERANCE for box in boxes])[owner]
-    off = np.abs(ratio(guess, iy, ix) - r) > tol * r + FLOOR
+    judged = np.array([_count(judged_sum, box) > 0 for box in boxes])[owner]
+    tol = np.where(judged, TOLERANCE, DRAWN_TOLERANCE)
+    off = np.abs(ratio(guess, iy, ix) - r) > tol * r + np.where(judged, FLOOR, DRAWN_FLOOR)
     bad = np.isnan(r) | off
     n = len(boxes)
     lo = np.full(n, np.inf)

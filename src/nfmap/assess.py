@@ -370,23 +370,52 @@ def assess(site: Site, jobs: int = 1, progress: Callable[[int], None] | None = N
     edge value.
     """
     with engine.Workers(jobs) as workers:
-        margin = (covering_margin_m(site, workers, max_field_points, exhaustive) if grow
+        samplers = Samplers()  # the margin's ring and the ground level's lattice share their H nodes
+        margin = (covering_margin_m(site, workers, max_field_points, exhaustive, samplers) if grow
                   else site.grid.margin_m)
         if margin <= site.grid.margin_m:
-            return _assess_once(site, workers, progress, exhaustive)
+            return _assess_once(site, workers, progress, exhaustive, samplers)
         grown = replace(site, grid=replace(site.grid, margin_m=margin))
-        return replace(_assess_once(grown, workers, progress, exhaustive), margin_given_m=site.grid.margin_m)
+        return replace(_assess_once(grown, workers, progress, exhaustive, samplers), margin_given_m=site.grid.margin_m)
 
 
-def _assess_once(site: Site, workers: engine.Workers, progress, exhaustive: bool = False) -> Assessment:
+class Samplers:
+    """The H samplers (:class:`engine.SampledH`) of an assessment, one per model, lattice and power: a point
+    computed for one part of the run (the margin's ring) is not computed again for another (the lattice).
+    Safe to use from several threads."""
+
+    def __init__(self):
+        self._kept: list[tuple[tuple, engine.SampledH]] = []
+        self._lock = threading.Lock()
+
+    def get(self, model: engine.Model, lattice: engine.Lattice, power_w: float, workers,
+            progress: Callable[[int], None] | None = None) -> engine.SampledH:
+        key = (model, lattice, float(power_w))
+        with self._lock:
+            found = next((s for k, s in self._kept if k == key), None)
+            if found is None:
+                found = engine.SampledH(model, lattice, power_w, workers, progress)
+                self._kept.append((key, found))
+        found.progress = progress
+        return found
+
+    def keep_only(self, lattice: engine.Lattice) -> None:
+        """Forget the samplers of other lattices (a margin tried and grown past)."""
+        with self._lock:
+            self._kept = [(k, s) for k, s in self._kept if k[1] == lattice]
+
+
+def _assess_once(site: Site, workers: engine.Workers, progress, exhaustive: bool = False,
+                 samplers: Samplers | None = None) -> Assessment:
     pl = plan(site)
     notes: list[str] = list(site.warnings)
     lats = _lattices(site, pl)
     progress = _serialised(progress)
+    samplers = samplers or Samplers()
 
     def one(t) -> tuple[TransmissionResult, int]:
         points = [0]
-        return _one(site, pl, lats, t, workers, progress, exhaustive, points), points[0]
+        return _one(site, pl, lats, t, workers, progress, exhaustive, points, samplers), points[0]
 
     # transmissions side by side (threads waiting on the shared workers); notes merged in the site's order
     done = workers.each(one, site.transmissions)
@@ -440,19 +469,21 @@ def edge_ratio(ratio: np.ndarray) -> float:
 
 
 def covering_margin_m(site: Site, workers: engine.Workers, max_field_points: int | None = None,
-                      exhaustive: bool = True) -> float:
+                      exhaustive: bool = True, samplers: Samplers | None = None) -> float:
     """The smallest margin (tried in growing steps) whose lattice edge reads below ``EDGE_RATIO``.
 
     At each trial only the ground ring of the lattice is evaluated (every transmission, its worst
     check against the public tier, added within each group as field ratios: at least the combined case's
     value under either summation rule); not ``exhaustive``, every coarse point of the ring (the adaptive
-    lattice's coarse stride). Stops at ``MARGIN_MAX_M`` or where the lattice would exceed ``max_field_points``.
+    lattice's coarse stride, through ``samplers``: the lattice of the margin kept takes those points as computed).
+    Stops at ``MARGIN_MAX_M`` or where the lattice would exceed ``max_field_points``.
     """
     margin = site.grid.margin_m
     points_per_plan = site.grid.body.points * sum(len(headings_for(site, t.antenna)) for t in site.transmissions)
     while margin < MARGIN_MAX_M:
         trial = replace(site, grid=replace(site.grid, margin_m=margin))
-        r = _ring_ratio(trial, workers, 1 if exhaustive else adaptive.stride_for(site.grid.spacing_m))
+        r = (_ring_ratio(trial, workers) if exhaustive else
+             _ring_ratio(trial, workers, adaptive.stride_for(site.grid.spacing_m), samplers or Samplers()))
         if r < EDGE_RATIO:
             return margin
         step = max(2.0, (margin + 5.0) * (math.sqrt(r / EDGE_RATIO) - 1.0))
@@ -465,26 +496,37 @@ def covering_margin_m(site: Site, workers: engine.Workers, max_field_points: int
     return margin
 
 
-def _ring_ratio(site: Site, workers: engine.Workers, stride: int = 1) -> float:
+def _ring_ratio(site: Site, workers: engine.Workers, stride: int = 1, samplers: Samplers | None = None) -> float:
     """The worst check on the ground ring of the site's lattice (every ``stride``-th point and the corners):
-    per transmission, added within each group, the worst group (every point against the public tier)."""
+    per transmission, added within each group, the worst group (every point against the public tier).
+    With ``samplers`` (over a finite ground) each ring point is computed in full by the ground level's sampler,
+    so that the lattice finds it done."""
     pl = plan(site)
     xx, yy = np.meshgrid(pl.x_m, pl.y_m)
     ring = np.zeros(xx.shape, bool)
     ring[0, ::stride], ring[-1, ::stride], ring[::stride, 0], ring[::stride, -1] = True, True, True, True
     ring[0, -1], ring[-1, 0], ring[-1, -1] = True, True, True
-    px, py = xx[ring], yy[ring]
+    iy, ix = np.nonzero(ring)
+    px, py = xx[iy, ix], yy[iy, ix]
     heights = site.grid.body.heights_m()
     dz = float(heights[1] - heights[0]) if len(heights) > 1 else 1.0
     # one NEC card a column, the first and last rows one card each
     pts = engine.Columns(np.column_stack([px, py]), float(heights[0]), dz, len(heights), stride * pl.spacing_m)
+    ground = _lattices(site, pl)[0]  # the ground level's lattice (its window is the whole plan)
+    if samplers is not None:
+        samplers.keep_only(ground)
 
     def worst_of(t) -> np.ndarray:
         worst = np.zeros(len(px))
         for heading in headings_for(site, t.antenna):
-            nf = engine.near_fields(model_for(site, t.name, heading_deg=heading), pts, t.envelope_power_w, jobs=workers)
-            e = engine.rms_magnitude(nf.e_v_per_m).reshape(len(px), len(heights)).T
-            h = engine.rms_magnitude(nf.h_a_per_m).reshape(len(px), len(heights)).T
+            model = model_for(site, t.name, heading_deg=heading)
+            if samplers is not None and engine.samples_h(model):
+                e_c, h_c = samplers.get(model, ground, t.envelope_power_w, workers).fields(iy, ix, exact=True)
+            else:
+                nf = engine.near_fields(model, pts, t.envelope_power_w, jobs=workers)
+                e_c, h_c = nf.e_v_per_m, nf.h_a_per_m
+            e = engine.rms_magnitude(e_c).reshape(len(px), len(heights)).T
+            h = engine.rms_magnitude(h_c).reshape(len(px), len(heights)).T
             for r, _ in t.check_ratios(site.standard, "public", *body_fields(site, e, h)).values():
                 worst = np.fmax(worst, np.nan_to_num(r))
         return worst
@@ -617,13 +659,11 @@ def headings_for(site: Site, antenna: str) -> tuple[float | None, ...]:
     return ROTATOR_HEADINGS_DEG if spec.kind == "beam" and spec.param("heading_deg") == "any" else (None,)
 
 
-def _level_maps(site, pl, lats, model, t, workers, progress, exhaustive=True):
+def _level_maps(site, pl, lats, model, t, workers, progress, exhaustive=True, samplers=None):
     """Per level: fields on its lattice at the envelope power (every point, or adaptively), body reduction,
     every check's ratio against each point's tier; the solution and the NEC points evaluated."""
-    out = []
-    sol = None
-    points = 0
-    for lv, lat in zip(pl.levels, lats, strict=True):
+    def level(pair):
+        lv, lat = pair
         if exhaustive:
             nf = engine.near_fields(model, lat, t.envelope_power_w, jobs=workers, progress=progress)
             sol = nf.solution
@@ -631,12 +671,9 @@ def _level_maps(site, pl, lats, model, t, workers, progress, exhaustive=True):
             e_z = engine.rms_magnitude(nf.e_v_per_m).reshape(nz, ny, nx)
             h_z = engine.rms_magnitude(nf.h_a_per_m).reshape(nz, ny, nx)
             reduced = body_fields(site, e_z, h_z)
-            points += lat.size
-            final = None
+            n, final = lat.size, None
         else:
-            reduced, sol_, n, done = _adaptive_level(site, pl, lv, model, t, workers, progress)
-            sol = sol_ or sol
-            points += n
+            reduced, sol, n, done = _adaptive_level(site, pl, lv, lat, model, t, workers, progress, samplers)
             final = np.zeros((len(pl.y_m), len(pl.x_m)), bool)
             final[lv.window] = done
         full = [np.full((len(pl.y_m), len(pl.x_m)), np.nan) for _ in range(4)]
@@ -644,8 +681,12 @@ def _level_maps(site, pl, lats, model, t, workers, progress, exhaustive=True):
             dst[lv.window] = src
         e, h, e_pk, h_pk = full
         judged, r_pub = judge_level(site, lv, t, e, h, e_pk, h_pk)
-        out.append(LevelMaps(lv.floor_m, t.envelope_power_w, judged, r_pub, e, h, e_pk, h_pk, final))
-    return out, sol or engine.solve(model), points
+        return LevelMaps(lv.floor_m, t.envelope_power_w, judged, r_pub, e, h, e_pk, h_pk, final), sol, n
+
+    # levels side by side (a raised floor's small lattice need not wait for the ground's)
+    done_ = workers.each(level, list(zip(pl.levels, lats, strict=True)))
+    sol = next((s_ for _, s_, _ in done_ if s_ is not None), None)
+    return [m for m, _, _ in done_], sol or engine.solve(model), sum(n for _, _, n in done_)
 
 
 FIELDS = ("e", "h", "e_pk", "h_pk")
@@ -658,7 +699,8 @@ def body_fields(site: Site, e: np.ndarray, h: np.ndarray) -> tuple[np.ndarray, .
             averaging.spatial_peak(e), averaging.spatial_peak(h))
 
 
-def _adaptive_level(site: Site, pl: Plan, lv: Level, model: engine.Model, t, workers, progress):
+def _adaptive_level(site: Site, pl: Plan, lv: Level, lat: engine.Lattice, model: engine.Model, t, workers, progress,
+                    samplers: Samplers | None = None):
     """One level's body-reduced fields on its window of the plan, NEC points only where the answer
     changes (:mod:`nfmap.adaptive`). Returns the four maps, a solution (or None) and the NEC points."""
     sy, sx = lv.window
@@ -669,9 +711,8 @@ def _adaptive_level(site: Site, pl: Plan, lv: Level, model: engine.Model, t, wor
     occupational = tier == "occupational"
     sol = []
     # over a finite ground H comes from curl E at nodes, interpolated where it is smooth (engine.SampledH)
-    sampler = engine.SampledH(model, engine.Lattice((float(xs[0]), float(ys[0]), float(heights[0])),
-                                                    (pl.spacing_m, pl.spacing_m, dz), (len(xs), len(ys), len(heights))),
-                              t.envelope_power_w, workers, progress) if engine.samples_h(model) else None
+    sampler = ((samplers or Samplers()).get(model, lat, t.envelope_power_w, workers, progress)
+               if engine.samples_h(model) else None)
 
     def evaluate(iy: np.ndarray, ix: np.ndarray, exact: bool = False) -> dict[str, np.ndarray]:
         if sampler is not None:
@@ -810,7 +851,7 @@ def _both_final(a: np.ndarray | None, b: np.ndarray | None) -> np.ndarray | None
     return b if a is None else a if b is None else a & b
 
 
-def _one(site, pl, lats, t, workers, progress, exhaustive=True, points=None) -> TransmissionResult:
+def _one(site, pl, lats, t, workers, progress, exhaustive=True, points=None, samplers=None) -> TransmissionResult:
     """One transmission: solve, fields on every level, body reduction, ratios and figures.
 
     A beam on a rotator is assessed at every heading of ``ROTATOR_HEADINGS_DEG``; each plan
@@ -818,16 +859,30 @@ def _one(site, pl, lats, t, workers, progress, exhaustive=True, points=None) -> 
     """
     tx_notes: list[str] = []
     headings = headings_for(site, t.antenna)
+    models = [model_for(site, t.name, tx_notes, heading_deg=heading) for heading in headings]
+    first = next(k for k, heading in enumerate(headings) if heading in (None, 0))
+    model = models[first]
+    structure = model.structures[model.active]
+    spec = site.antenna(t.antenna)
+
+    def section() -> section_.Section:
+        return section_.compute(
+            site, t, model, feed_point_m(structure),
+            (float(pl.x_m[0]), float(pl.x_m[-1]), float(pl.y_m[0]), float(pl.y_m[-1])), pl.spacing_m, workers,
+            None if spec.section_deg is None else spec.section_deg - site.north_deg, adaptive_=not exhaustive)
+
+    def headings_() -> list:
+        return [_level_maps(site, pl, lats, m, t, workers, progress, exhaustive, samplers) for m in models]
+
+    # the section (a drawing of its own) side by side with the levels: while one waits on a small adaptive round,
+    # the workers compute the other's
+    by_heading, sec = workers.each(lambda part: part(), [headings_, section])
     levels = None
-    for heading in headings:
-        model = model_for(site, t.name, tx_notes, heading_deg=heading)
-        maps_, sol, n = _level_maps(site, pl, lats, model, t, workers, progress, exhaustive)
+    for maps_, _, n in by_heading:
         if points is not None:
             points[0] += n
         levels = maps_ if levels is None else _merge_headings(levels, maps_)
-        if heading in (None, 0):
-            first_sol, first_model = sol, model
-    sol, model = first_sol, first_model
+    sol = by_heading[first][1]
     if len(headings) > 1:
         env = rotator_envelope(site, pl, t, workers)
         diff_db = _difference_db([m.ratio for m in env], [m.ratio for m in levels])
@@ -849,15 +904,10 @@ def _one(site, pl, lats, t, workers, progress, exhaustive=True, points=None) -> 
             "resonance; check the antenna's dimensions (the fields are computed for the power accepted, so the "
             "assessment stays valid for the model as described)"
         )
-    structure = model.structures[model.active]
     _, gain_dbi = engine.pattern_figures(structure, t.frequency_mhz)
     whole = checks.checks_for(site.standard, t.frequency_mhz)[0]
     lim_pub = checks.check_limits(whole, "public", t.frequency_mhz)
     ff = farfield.distance_to_limit_m(t.envelope_power_w * t.power_factor(whole, "public"), 10 ** (gain_dbi / 10), lim_pub)
-    spec = site.antenna(t.antenna)
-    sec = section_.compute(
-        site, t, model, feed_point_m(structure), (float(pl.x_m[0]), float(pl.x_m[-1]), float(pl.y_m[0]), float(pl.y_m[-1])),
-        pl.spacing_m, workers, None if spec.section_deg is None else spec.section_deg - site.north_deg, adaptive_=not exhaustive)
     return TransmissionResult(
         t.name, t.antenna, t.frequency_mhz, t.power_w, t.average_power_w, sol.feed_impedance_ohm,
         **_from_levels(site, pl, t, levels, structure), far_field_distance_m=ff, gain_dbi=gain_dbi,

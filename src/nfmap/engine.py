@@ -33,12 +33,13 @@ reference at every point only near the wires; elsewhere at nodes every s-th poin
 2, 4, 8, by the scale on which the field changes along it: the distance to a wire across it, farther along
 it; at most an eighth of a wavelength apart), checked for a Sommerfeld step inside
 the stencil (then read by the median of slopes, which a step cannot move), and interpolates H's
-components between nodes by cubic Lagrange polynomials; a node column takes curl E at every other height
-where the wires are as far away again, H cubic in height between; E is computed at every point. Against the
-reference where it is steady, on a 0.3 m lattice (30 m square, 9 heights) around each of
-``benchmarks/engine.py``'s antennas: within 1.2 % everywhere, in the time of 1.2 (dipole at 10 m),
-1.4 (beam at 12 m; end-fed wire) and 2.1 (ground-mounted vertical, radials across the lattice) E evaluations
-a point; within 2 % on every example wherever the ratio is 0.05 or more (``tests/engine/test_sampled_h.py``).
+components between nodes by cubic Lagrange polynomials; a node column (near a wire too) takes curl E at every
+2nd or 3rd height where the wires are as far away again in height (a cubic through four heights or more), H cubic
+in height between; E is computed at every point. Against the reference where it is steady, on a 0.3 m lattice
+(30 m square, 9 heights) around each of ``benchmarks/engine.py``'s antennas: within 1.2 % everywhere, in the
+time of 1.2 (dipole at 10 m), 1.3 (beam at 12 m; end-fed wire) and 1.9 (ground-mounted vertical, radials across
+the lattice) E evaluations a point; within 2 % on every example wherever the ratio is 0.05 or more
+(``tests/engine/test_sampled_h.py``).
 
 References
 ----------
@@ -366,45 +367,77 @@ def _points(counter: _Counter, pts: np.ndarray, kind: str, name: str) -> np.ndar
     out = np.empty((len(pts), 3), complex)
     order = np.lexsort((pts[:, 2], pts[:, 1], pts[:, 0]))  # by x, then y, then height
     p = pts[order]
-    k = 0
     try:
-        while k < len(p):
-            j, gap = _run(p[:, 2], p[:, :2], k)
+        for k, j, gap in _runs(p[:, 2], p[:, :2]):
             x, y, z = (float(v) for v in p[k])
             nf = counter.card(kind, (0, 1, 1, j - k, x, y, z, 0.0, 0.0, gap if j - k > 1 else 0.0))
             out[order[k:j]] = np.column_stack([np.asarray(nf.get_field_x()), np.asarray(nf.get_field_y()),
                                                np.asarray(nf.get_field_z())])
-            k = j
     except (RuntimeError, AttributeError, IndexError, ValueError) as err:
         raise EngineError("near field", name, str(err) or "near-field card failed") from err
     return out
 
 
-def _run(along: np.ndarray, line: np.ndarray, k: int) -> tuple[int, float]:
-    """The run of entries from ``k`` that one NEC card can hold: on the same line (equal rows of ``line``) at
-    equal positive steps of ``along``. Returns its end (exclusive) and its step (0 for a single entry)."""
-    j = k + 1
-    if j >= len(along) or not (line[j] == line[k]).all() or not along[j] > along[k]:
-        return j, 0.0
-    gap = float(along[j] - along[k])
-    while j < len(along) and (line[j] == line[k]).all() and abs(along[j] - along[j - 1] - gap) <= 1e-9 * max(1.0, gap):
-        j += 1
-    return j, gap
+def _runs(along: np.ndarray, line: np.ndarray) -> list[tuple[int, int, float]]:
+    """The runs of entries that one NEC card each can hold, in order: entries on the same line (equal rows of
+    ``line``) at equal positive steps of ``along``, each run as long as it goes. Returns (start, end exclusive,
+    step; 0 for a single entry)."""
+    n = len(along)
+    d = np.diff(along)
+    pair = (line[1:] == line[:-1]).all(axis=1) & (d > 0)  # entries i and i + 1 can share a card
+    cont = np.zeros(max(n - 1, 0), bool)  # pair i continues pair i - 1's run (same step)
+    if n > 2:
+        cont[1:] = pair[1:] & pair[:-1] & (np.abs(d[1:] - d[:-1]) <= 1e-9 * np.maximum(1.0, d[:-1]))
+    stops = np.flatnonzero(~cont)
+    out, k = [], 0
+    while k < n:
+        if k < n - 1 and pair[k]:
+            i = int(np.searchsorted(stops, k + 1))
+            end = int(stops[i]) + 1 if i < len(stops) else n
+            out.append((k, end, float(d[k])))
+        else:
+            end = k + 1
+            out.append((k, end, 0.0))
+        k = end
+    return out
+
+
+def _stacks(runs: list[tuple[int, int, float]], xy: np.ndarray) -> list[tuple[list[tuple[int, int]], float, float]]:
+    """Runs (from :func:`_runs`) stacked across rows: runs of one start x, length and step at equal steps of y
+    share one card. Returns (the runs' (start, end), x step, y step) of each card."""
+    by_kind: dict[tuple, list[tuple[float, int, int]]] = {}
+    for k, j, gap in runs:
+        by_kind.setdefault((float(xy[k, 0]), j - k, gap), []).append((float(xy[k, 1]), k, j))
+    out = []
+    for (_, _, gap), rows in by_kind.items():
+        rows.sort()
+        i = 0
+        while i < len(rows):
+            end, dy = i + 1, 0.0
+            if end < len(rows) and rows[end][0] > rows[i][0]:
+                dy = rows[end][0] - rows[i][0]
+                while end < len(rows) and abs(rows[end][0] - rows[end - 1][0] - dy) <= 1e-9 * max(1.0, dy):
+                    end += 1
+            out.append(([(k, j) for _, k, j in rows[i:end]], gap, dy))
+            i = end
+    return out
 
 
 def _columns(counter: _Counter, cols: Columns, offset, kind: str, name: str) -> np.ndarray:
     xy = np.asarray(cols.xy_m, float).reshape(-1, 2)
     out = np.empty((len(xy), cols.nz, 3), complex)
     ox, oy, oz = (float(v) for v in offset)
-    k = 0
+    runs = _runs(xy[:, 0], xy[:, 1:]) if cols.run_dx_m > 0 else [(k, k + 1, 0.0) for k in range(len(xy))]
     try:
-        while k < len(xy):
-            j, gap = _run(xy[:, 0], xy[:, 1:], k) if cols.run_dx_m > 0 else (k + 1, 0.0)
-            nf = counter.card(kind, (0, j - k, 1, cols.nz, float(xy[k, 0]) + ox, float(xy[k, 1]) + oy, cols.z0_m + oz,
-                                     gap if j - k > 1 else 0.0, 0.0, cols.dz_m))
+        for rows, gap, dy in _stacks(runs, xy):
+            k0, j0 = rows[0]
+            n = j0 - k0
+            nf = counter.card(kind, (0, n, len(rows), cols.nz, float(xy[k0, 0]) + ox, float(xy[k0, 1]) + oy, cols.z0_m + oz,
+                                     gap if n > 1 else 0.0, dy, cols.dz_m))
             v = np.column_stack([np.asarray(nf.get_field_x()), np.asarray(nf.get_field_y()), np.asarray(nf.get_field_z())])
-            out[k:j] = v.reshape(cols.nz, j - k, 3).transpose(1, 0, 2)  # x fastest, then height
-            k = j
+            v = v.reshape(cols.nz, len(rows), n, 3)  # x fastest, then y, then height
+            for r, (k, j) in enumerate(rows):
+                out[k:j] = v[:, r].transpose(1, 0, 2)
     except (RuntimeError, AttributeError, IndexError, ValueError) as err:
         raise EngineError("near field", name, str(err) or "near-field card failed") from err
     return out.reshape(-1, 3)
@@ -502,21 +535,35 @@ def exclusion_m(model: Model) -> list[tuple[np.ndarray, np.ndarray, float]]:
     return out
 
 
+MASK_BLOCK = 20_000  # points a block when masking (every wire at once)
+
+
 def mask_points(model: Model, points_m: np.ndarray, extra_m: float = 0.0) -> np.ndarray:
     """True where a point is below ground or inside a wire's exclusion distance (plus ``extra_m``)."""
-    pts = np.asarray(points_m, float)
-    masked = np.zeros(len(pts), bool)
-    if model.ground.over_ground:
-        masked |= pts[:, 2] < 0.0
-    for a, b, r in exclusion_m(model):
-        masked |= _segment_distance_m(pts, a, b) < r + extra_m
+    pts = np.asarray(points_m, float).reshape(-1, 3)
+    masked = pts[:, 2] < 0.0 if model.ground.over_ground else np.zeros(len(pts), bool)
+    wires = exclusion_m(model)
+    a = np.array([w[0] for w in wires]).reshape(-1, 3)
+    ab = np.array([w[1] for w in wires]).reshape(-1, 3) - a
+    reach2 = (np.array([w[2] for w in wires]) + extra_m) ** 2
+    length2 = np.einsum("wc,wc->w", ab, ab)
+    for k in range(0, len(pts), MASK_BLOCK):  # every wire at once, a block of points at a time
+        rel = pts[k : k + MASK_BLOCK, None, :] - a  # (n, W, 3)
+        t = np.clip(np.einsum("nwc,wc->nw", rel, ab) / length2, 0.0, 1.0)
+        off = rel - t[:, :, None] * ab
+        masked[k : k + MASK_BLOCK] |= (np.einsum("nwc,nwc->nw", off, off) < reach2).any(axis=1)
     return masked
+
+
+def _norms(v: np.ndarray) -> np.ndarray:
+    """Euclidean norm of each row (N, 3)."""
+    return np.sqrt(np.einsum("ij,ij->i", v, v))
 
 
 def _segment_distance_m(pts: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
     ab = b - a
     t = np.clip(((pts - a) @ ab) / (ab @ ab), 0.0, 1.0)
-    return np.linalg.norm(pts - (a + t[:, None] * ab), axis=1)
+    return _norms(pts - (a + t[:, None] * ab))
 
 
 def wire_distance_m(model: Model, points_m: np.ndarray) -> np.ndarray:
@@ -544,15 +591,28 @@ def wire_scales_m(model: Model, points_m: np.ndarray, directions: Sequence[np.nd
         ab = b - a
         length = float(np.linalg.norm(ab))
         w = ab / length
-        t = (pts - a) @ w
-        d = np.linalg.norm(pts - (a + np.clip(t, 0.0, length)[:, None] * w), axis=1)
-        ends = np.minimum(np.linalg.norm(pts - a, axis=1), np.linalg.norm(pts - b, axis=1))
+        rel = pts - a
+        t = rel @ w
+        # squared distances: to the axis (beside the wire), to each end
+        d2_line = np.maximum(np.einsum("ij,ij->i", rel, rel) - t * t, 0.0)
+        d2_a = np.einsum("ij,ij->i", rel, rel)
+        d2_b = d2_a - 2.0 * t * length + length * length
         beside = (t > 0.0) & (t < length)
+        d = np.sqrt(np.where(beside, d2_line, np.where(t <= 0.0, d2_a, d2_b)))
+        ends = np.sqrt(np.maximum(np.minimum(d2_a, d2_b), 0.0))
         for k, u in enumerate(directions):
             sine = float(np.linalg.norm(np.cross(u, w)))
             along = np.minimum(d / sine, ends) if sine > 1e-9 else ends
-            out[k] = np.minimum(out[k], np.where(beside, along, d))
+            np.minimum(out[k], np.where(beside, along, d), out=out[k])
     return out
+
+
+def _min_filter(a: np.ndarray, half_y: int, half_x: int) -> np.ndarray:
+    """The smallest value of ``a`` (2-D) over a window of (2 half_y + 1) x (2 half_x + 1) about each entry, the
+    edges extended (as scipy.ndimage.minimum_filter with mode "nearest"; tested against it)."""
+    out = np.pad(a, ((half_y, half_y), (half_x, half_x)), mode="edge")
+    out = np.lib.stride_tricks.sliding_window_view(out, 2 * half_y + 1, axis=0).min(axis=-1)
+    return np.lib.stride_tricks.sliding_window_view(out, 2 * half_x + 1, axis=1).min(axis=-1)
 
 
 def _block_min(a: np.ndarray) -> np.ndarray:
@@ -577,6 +637,12 @@ def _worker_init() -> None:
         os.environ[var] = "1"
 
 
+def _worker_ready() -> None:
+    """Nothing but the imports a worker needs: handed to each worker as the pool opens, so that the workers start
+    while the caller prepares its first request."""
+    _pynec()
+
+
 class Workers:
     """Worker processes kept for several near-field runs (use as a context manager).
 
@@ -599,6 +665,8 @@ class Workers:
             self._pool = ProcessPoolExecutor(
                 self.jobs, mp_context=multiprocessing.get_context("spawn"), initializer=_worker_init
             )
+            for _ in range(self.jobs):
+                self._pool.submit(_worker_ready)
         return self
 
     def __exit__(self, exc_type, *exc) -> None:
@@ -675,7 +743,8 @@ class Workers:
 _SOLVED: list = []  # per process: the models last solved (newest last), each with its context and card counter
 CACHED_MODELS = 4  # transmissions assessed side by side each keep theirs
 CACHED_POINTS_MAX = 200_000  # a cached context keeps every pattern it computed: rebuilt beyond this many points
-CACHED_CARDS_MAX = 2_000  # ... or cards (PyNEC's pattern lookup slows as they pile up: 2.3 ms a card at 10^5)
+CACHED_CARDS_MAX = 4_000  # ... or cards (PyNEC finds a card's pattern by walking the list: +2.7 us a card per 1,000 held,
+# measured; a rebuild costs about 30 ms: 4,000 keeps the sum near its least)
 
 
 def _task(model: Model, where, h_method: str, step_m: float):
@@ -840,21 +909,48 @@ def _chunked(model: Model, where, n_jobs: int):
         live = np.flatnonzero(grid.any(axis=1))
         low = np.argmax(grid[live], axis=1)
         high = nz - 1 - np.argmax(grid[live, ::-1], axis=1)
-        per = max(1, min(CHUNK_POINTS // nz, math.ceil(len(live) / (4 * n_jobs))))
+        per = max(1, CHUNK_POINTS // nz if n_jobs == 1 else min(CHUNK_POINTS // nz, math.ceil(len(live) / (4 * n_jobs))))
         chunks, kept = [], []
         for reach in np.unique(low * nz + high):
             k0, k1 = divmod(int(reach), nz)
             same = live[low * nz + high == reach]
             part = replace(where, z0_m=where.z0_m + k0 * where.dz_m, nz=k1 - k0 + 1)
-            for i in range(0, len(same), per):
-                chunks.append(part.take(same[i : i + per]))
-                kept.append((same[i : i + per, None] * nz + np.arange(k0, k1 + 1)).ravel())
+            xy = np.asarray(where.xy_m, float).reshape(-1, 2)[same]
+            for idx in _card_chunks(xy, where.run_dx_m > 0, per):
+                chunks.append(part.take(same[idx]))
+                kept.append((same[idx, None] * nz + np.arange(k0, k1 + 1)).ravel())
         keep = np.concatenate(kept) if kept else np.zeros(0, int)
     else:
         keep = np.flatnonzero(~masked)
-        per = max(1, min(CHUNK_POINTS, math.ceil(len(keep) / (4 * n_jobs))))
+        per = max(1, CHUNK_POINTS if n_jobs == 1 else min(CHUNK_POINTS, math.ceil(len(keep) / (4 * n_jobs))))
         chunks = [pts[keep[i : i + per]] for i in range(0, len(keep), per)]
     return pts, masked, chunks, keep
+
+
+def _card_chunks(xy: np.ndarray, runs_along_x: bool, per: int) -> list[np.ndarray]:
+    """Columns ``xy`` (in row order) in chunks of about ``per``, each holding whole NEC cards where it can (the
+    stacks of :func:`_stacks`; a stack wider than ``per`` by rows, a run longer than ``per`` in pieces): fewer
+    cards than cutting every ``per`` columns. Each chunk's indices in order."""
+    runs = _runs(xy[:, 0], xy[:, 1:]) if runs_along_x else [(k, k + 1, 0.0) for k in range(len(xy))]
+    pieces = []
+    for rows, _, _ in _stacks(runs, xy):
+        width = rows[0][1] - rows[0][0]
+        if width >= per:
+            pieces += [np.arange(a, min(a + per, j)) for k, j in rows for a in range(k, j, per)]
+        else:
+            high = max(1, per // width)
+            pieces += [np.concatenate([np.arange(k, j) for k, j in rows[r : r + high]]) for r in range(0, len(rows), high)]
+    pieces.sort(key=lambda p: int(p[0]))
+    chunks, held, size = [], [], 0
+    for p in pieces:
+        if size and size + len(p) > per:
+            chunks.append(np.sort(np.concatenate(held)))
+            held, size = [], 0
+        held.append(p)
+        size += len(p)
+    if held:
+        chunks.append(np.sort(np.concatenate(held)))
+    return chunks
 
 
 def _merge_y(values: np.ndarray, chunks: list[Lattice], nx: int, nz: int) -> np.ndarray:
@@ -871,9 +967,15 @@ H_BLOCK = 4  # plan points per block side; a block's H nodes are every s-th poin
 H_STRIDES = (1, 2, 4, 8)
 H_NODE_SCALE = 0.5  # node spacing <= this times the distance from the block to the nearest wire ...
 H_NODE_WAVELENGTHS = 0.125  # ... and <= this many wavelengths
+H_Z_STRIDES = (2, 3)  # a node column between nodes: curl E at every kz-th height where kz dz is within the reach
 H_BOUND = 0.02  # |H| between nodes is within this share of the reference (measured and tested; README)
 H_STEADY = 0.01  # a node between nodes whose central H a Sommerfeld step inside its stencil could move by more than
 # this share (by the Laplacian of E over the stencil, which is -k^2 E where E is smooth) takes the robust curl
+
+
+def _axis_nodes(n: int, s: int) -> list[int]:
+    """The node indices of an axis of ``n`` points at stride ``s`` (as :func:`_axis_table` takes them)."""
+    return sorted(set(range(0, n, s)) | {n - 1})
 
 
 @functools.lru_cache(maxsize=64)
@@ -884,20 +986,19 @@ def _axis_table(n: int, s: int) -> tuple[np.ndarray, np.ndarray]:
     weight 0) and their cubic Lagrange weights (``idx``, ``w``, each (n, 4)). A node is its own only node
     (weight 1).
     """
-    nodes = np.array(sorted(set(range(0, n, s)) | {n - 1}))
-    idx = np.zeros((n, 4), int)
+    nodes = np.array(_axis_nodes(n, s))
+    i = np.arange(n)
+    j = np.searchsorted(nodes, i)
+    start = np.minimum(np.maximum(j - 2, 0), max(len(nodes) - 4, 0))
+    m = min(4, len(nodes))
+    use = nodes[start[:, None] + np.arange(m)]  # (n, m) the nodes bracketing each index
     w = np.zeros((n, 4))
-    for i in range(n):
-        j = int(np.searchsorted(nodes, i))
-        if j < len(nodes) and nodes[j] == i:
-            idx[i], w[i, 0] = i, 1.0
-            continue
-        start = min(max(j - 2, 0), max(len(nodes) - 4, 0))
-        use = nodes[start: start + 4]
-        for k, a in enumerate(use):
-            w[i, k] = np.prod([(i - b) / (a - b) for b in use if b != a])
-            idx[i, k] = a
-        idx[i, len(use):] = use[-1]
+    for k in range(m):
+        others = np.delete(use, k, axis=1)
+        w[:, k] = np.prod((i[:, None] - others) / (use[:, [k]] - others), axis=1)
+    idx = np.concatenate([use, np.repeat(use[:, -1:], 4 - m, axis=1)], axis=1)
+    on = np.isin(i, nodes)  # a node: itself alone
+    idx[on], w[on] = i[on, None], np.array([1.0, 0.0, 0.0, 0.0])
     return idx, w
 
 
@@ -947,7 +1048,8 @@ class SampledH:
     (sx, sy) columns (the nodes its points interpolate from), at every height. Its nodes are the columns at
     multiples of sx and sy (global indices, so that blocks share them) and the last column.
 
-    - sx = sy = 1, near wires: every column is a node, E and H the reference (curl E, :func:`near_fields` "curl").
+    - sx = sy = 1, near wires: every column is a node, E and H the reference (curl E, :func:`near_fields` "curl");
+      where the wires are far enough in height, checked (below) at every kz-th height, H cubic in height between.
     - A node between nodes is "checked": E at the node itself too. A smooth field's Laplacian over the seven
       points is -k^2 E however strongly it curves beside a wire; a Sommerfeld step inside the stencil (which
       would spread as a spike over the node's neighbourhood) leaves a residual that bounds how far it moved
@@ -958,9 +1060,13 @@ class SampledH:
       The components, not |H|: the magnitude has a kink at a null of the field (measured: |H| interpolated
       read 16 times the reference on a vertical's axis); the eighth-wavelength limit keeps the phase's turn
       between nodes within what a cubic follows (error (k h)^4 x 9/384: 0.9 % at lambda/8).
+    - A node column (of a plan sheet) takes curl E at every kz-th height (``H_Z_STRIDES``; kz = 3 only where that
+      leaves four heights or more) and the top one, where kz x dz <= ``H_NODE_SCALE`` x the scale in height and the
+      eighth wavelength; E alone at the heights between, H's components cubic in height between.
     - A point whose interpolation meets a masked node takes the reference curl at that point alone.
 
-    Nodes are kept between calls, so an adaptive lattice asking round after round pays for each node once.
+    Nodes are kept between calls, so an adaptive lattice asking round after round pays for each node once, and a
+    point asked for exactly (computed at every height) keeps its own H when asked for again.
     Accuracy against the reference: the module docstring, ``benchmarks/engine.py`` and
     ``tests/engine/test_sampled_h.py``.
     """
@@ -978,8 +1084,6 @@ class SampledH:
         steps = (float(np.linalg.norm(sheet.step_x_m)), float(np.linalg.norm(sheet.step_y_m)))
         along = [np.asarray(sheet.step_x_m) / steps[0], np.asarray(sheet.step_y_m) / steps[1], np.array([0.0, 0.0, 1.0])]
         scale = [v.reshape(ny, nx, nz).min(axis=2) for v in wire_scales_m(model, sheet.points(iy, ix), along)]
-        from scipy import ndimage  # here: worker processes never build a sampler
-
         cap = H_NODE_WAVELENGTHS * model.wavelength_m
         nby, nbx = -(-ny // H_BLOCK), -(-nx // H_BLOCK)
         sx, sy = np.ones((nby, nbx), int), np.ones((nby, nbx), int)
@@ -988,15 +1092,19 @@ class SampledH:
                 ok = np.ones((nby, nbx), bool)
                 for k, step, sc in ((kx, steps[0], scale[0]), (ky, steps[1], scale[1])):
                     if k > 1:
-                        near = _block_min(ndimage.minimum_filter(sc, size=(2 * ky + 1, 2 * kx + 1), mode="nearest"))
+                        near = _block_min(_min_filter(sc, ky, kx))
                         ok &= k * step <= np.minimum(H_NODE_SCALE * near, cap)
                 better = ok & (kx * ky > sx * sy)
                 sx[better], sy[better] = kx, ky
         self.stride_x, self.stride_y = sx, sy
-        # a node column between nodes takes curl E at every other height (and the top one) and H's components by
-        # cubic polynomials in height between them, where two height steps are within the same reach in height
+        # a node column between nodes takes curl E at every kz-th height (and the top one) and H's components by
+        # cubic polynomials in height between them, where kz height steps are within the same reach in height
+        # (kz = 3 only where that leaves four heights or more: a cubic)
         plan_sheet = sheet.step_x_m[1] == 0 and sheet.step_x_m[2] == 0 and sheet.step_y_m[2] == 0
-        self._z_sparse = (plan_sheet and nz >= 4) & (2 * sheet.dz_m <= np.minimum(H_NODE_SCALE * scale[2], cap))
+        self.stride_z = np.ones((ny, nx), int)
+        for kz in H_Z_STRIDES:
+            if plan_sheet and nz >= 4 and (kz == 2 or len(_axis_nodes(nz, kz)) >= 4):
+                self.stride_z[kz * sheet.dz_m <= np.minimum(H_NODE_SCALE * scale[2], cap)] = kz
         self._e: dict[int, np.ndarray] = {}  # node (iy * nx + ix) -> rms E (nz, 3)
         self._h: dict[int, np.ndarray] = {}  # ... -> rms H (nz, 3)
         self._full: set[int] = set()  # nodes whose H was computed at every height
@@ -1012,31 +1120,30 @@ class SampledH:
         keys, inverse = np.unique(keys, return_inverse=True)
         ref = np.zeros(len(keys), bool)
         np.logical_or.at(ref, inverse, reference)
-        fl = ref.copy()
+        fl = np.zeros(len(keys), bool)
         np.logical_or.at(fl, inverse, full)
         known = np.isin(keys, np.fromiter(self._h.keys(), int, len(self._h)))
         whole = np.isin(keys, np.fromiter(self._full, int, len(self._full)))
         new = ~known | (fl & ~whole)
         keys, ref, fl = keys[new], ref[new], fl[new]
         iy, ix = np.divmod(keys, nx)
-        sparse = ~fl & self._z_sparse[iy, ix]
+        zs = np.where(fl, 1, self.stride_z[iy, ix])
         # a node between nodes stands for its neighbourhood: a Sommerfeld step inside its stencil (a spike) must
         # not spread; such a node is found by the Laplacian of its stencil and takes the robust curl (median slopes)
-        groups = [(sel, method, rows) for method, sel, rows in (
-            ("curl", np.flatnonzero(ref), None), ("checked", np.flatnonzero(~ref & ~sparse), None),
-            ("checked", np.flatnonzero(sparse), "even"), ("checked", np.flatnonzero(sparse), "top"),
-            ("e-only", np.flatnonzero(sparse), "odd")) if len(sel)]
-        z_even = np.arange(0, nz, 2)
-        z_odd = np.arange(1, nz - 1, 2)
-        top = [nz - 1] if (nz - 1) % 2 else []
-        heights = {None: np.arange(nz), "even": z_even, "odd": z_odd, "top": np.array(top, int)}
-        groups = [g for g in groups if len(heights[g[2]])]
+        every = np.arange(nz)
+        groups = [(np.flatnonzero(ref & (zs == 1)), "curl", every), (np.flatnonzero(~ref & (zs == 1)), "checked", every)]
+        for kz in np.unique(zs[zs > 1]):
+            # curl E at every kz-th height and the top one (each an equal-step run: one card a row), E alone between
+            sel = np.flatnonzero(zs == kz)
+            groups += [(sel, "checked", np.arange(0, nz, kz)), (sel, "checked", np.array([nz - 1]) if (nz - 1) % kz else every[:0])]
+            groups += [(sel, "e-only", np.arange(r, nz - 1, kz)) for r in range(1, kz)]
+        groups = [g for g in groups if len(g[0]) and len(g[2])]
         requests = []
-        for sel, method, rows in groups:
+        for sel, method, k in groups:
             cols = self.sheet.where(iy[sel], ix[sel])
-            if rows is not None:
-                k = heights[rows]
-                cols = replace(cols, z0_m=cols.z0_m + k[0] * cols.dz_m, dz_m=2 * cols.dz_m, nz=len(k))
+            if len(k) < nz:
+                cols = replace(cols, z0_m=cols.z0_m + k[0] * cols.dz_m, dz_m=(k[1] - k[0] if len(k) > 1 else 1) * cols.dz_m,
+                               nz=len(k))
             requests.append((cols, method))
         if plain is not None:
             requests.append((plain, "e-only"))
@@ -1046,18 +1153,17 @@ class SampledH:
         self.solution = got[0].solution
         e = np.full((len(keys), nz, 3), np.nan, complex)
         h = np.full((len(keys), nz, 3), np.nan, complex)
-        for (sel, method, rows), nf in zip(groups, got, strict=False):
-            k = heights[rows]
+        for (sel, method, k), nf in zip(groups, got, strict=False):
             e[sel[:, None], k[None, :]] = nf.e_v_per_m.reshape(len(sel), len(k), 3)
             if method != "e-only":
                 h[sel[:, None], k[None, :]] = nf.h_a_per_m.reshape(len(sel), len(k), 3)
-        if sparse.any():
+        for kz in np.unique(zs[zs > 1]):
             # H between the computed heights (masked heights stay masked: NaN spreads to their neighbours, which
             # are then computed in full below)
-            idx, w = _axis_table(nz, 2)
-            sp = np.flatnonzero(sparse)
+            idx, w = _axis_table(nz, int(kz))
+            sp = np.flatnonzero(zs == kz)
             h[sp] = np.einsum("kj,nkjc->nkc", w, h[sp][:, idx, :])
-        for k, ev, hv, f in zip(keys, e, h, ~sparse, strict=True):
+        for k, ev, hv, f in zip(keys, e, h, zs == 1, strict=True):
             self._e[int(k)], self._h[int(k)] = ev, hv
             if f:
                 self._full.add(int(k))
@@ -1094,7 +1200,9 @@ class SampledH:
             on = sx == st
             kx[on], wx[on] = (a[ix[on]] for a in _axis_table(nx, int(st)))
         reference = (sx == 1) & (sy == 1)
-        own = ((wy[:, 0] == 1.0) & (ky[:, 0] == iy) & (wx[:, 0] == 1.0) & (kx[:, 0] == ix)) | reference | exact
+        # a point computed in full before (asked for exactly: a margin's ring, a settled worst) keeps its own H
+        own = (((wy[:, 0] == 1.0) & (ky[:, 0] == iy) & (wx[:, 0] == 1.0) & (kx[:, 0] == ix)) | reference | exact
+               | self.computed(iy, ix))
         terms = [(a, b) for a in range(4) for b in range(4)]
         need = np.stack([np.where(wy[:, a] * wx[:, b] != 0, ky[:, a] * nx + kx[:, b], -1) for a, b in terms], axis=1)
         rest = np.flatnonzero(~own)

@@ -107,13 +107,13 @@ def test_node_columns_between_nodes_take_every_other_height():
     m = _model(lambda: antennas.dipole("d", (0, 0), 8.0, resonant_mhz=14.2), 14.2)
     lat = engine.Lattice((-8.0, -8.0, 0.2), (0.5, 0.5, 0.36), (33, 33, 6))
     sampler, iy, ix, _, h = _sampled_everywhere(m, lat, 100.0)
-    assert sampler._z_sparse.mean() > 0.5
+    assert (sampler.stride_z > 1).mean() > 0.5
     ref, mag, steady = _reference(m, lat)
     got = engine.rms_magnitude(h.transpose(1, 0, 2).reshape(-1, 3))  # heights slowest, as the lattice
     err = np.abs(got - mag) / mag
     assert np.max(err[steady]) <= BOUND
     # a node interpolated in height is not "computed"; asked exactly, it is, and reads the reference there
-    k = next(int(i) for i in range(len(iy)) if sampler._z_sparse[iy[i], ix[i]] and sampler.stride_x[iy[i] // 4, ix[i] // 4] * sampler.stride_y[iy[i] // 4, ix[i] // 4] > 1
+    k = next(int(i) for i in range(len(iy)) if sampler.stride_z[iy[i], ix[i]] > 1 and sampler.stride_x[iy[i] // 4, ix[i] // 4] * sampler.stride_y[iy[i] // 4, ix[i] // 4] > 1
              and iy[i] % 8 == 0 and ix[i] % 8 == 0)
     assert not sampler.computed(iy[[k]], ix[[k]])[0]
     _, h_exact = sampler.fields(iy[[k]], ix[[k]], exact=True)
@@ -133,8 +133,9 @@ def test_a_batch_reads_as_its_requests_one_by_one():
         batch = engine.near_fields_batch(m, requests, 50.0, pool)
     for (where, method), got in zip(requests, batch, strict=True):
         one = engine.near_fields(m, where, 50.0, h_method=method)
-        np.testing.assert_allclose(got.e_v_per_m, one.e_v_per_m, rtol=1e-12)
-        np.testing.assert_allclose(got.h_a_per_m, one.h_a_per_m, rtol=1e-12)
+        # the same to NEC's last bits (points grouped into other cards are summed in another order)
+        np.testing.assert_allclose(got.e_v_per_m, one.e_v_per_m, rtol=1e-9)
+        np.testing.assert_allclose(got.h_a_per_m, one.h_a_per_m, rtol=1e-9)
     # points on one vertical share a NEC card: the same fields as a column of that vertical
     col = engine.near_fields(m, engine.Columns(np.array([[0.5, 0.5]]), 1.0, 0.4, 3), 50.0, h_method="e-only")
     run = engine.near_fields(m, pts, 50.0, h_method="e-only")
@@ -276,3 +277,100 @@ def test_nodes_are_spaced_along_a_low_wire_more_widely_than_across_it():
     beside = (sampler.stride_x == 1) & (sampler.stride_y > 1)
     assert beside.any()
     assert not ((sampler.stride_y == 1) & (sampler.stride_x > 1)).any()
+
+
+def test_node_columns_far_from_wires_take_every_third_height():
+    # nine heights 0.2 m apart 4 m and more from a dipole 8 m up: curl E at heights 0, 3, 6 and 8 (a cubic through
+    # four), E alone between; within the bound of the reference at every height
+    m = _model(lambda: antennas.dipole("d", (0, 0), 8.0, resonant_mhz=14.2), 14.2)
+    lat = engine.Lattice((-8.0, -8.0, 0.2), (0.5, 0.5, 0.2), (33, 33, 9))
+    sampler, iy, ix, _, h = _sampled_everywhere(m, lat, 100.0)
+    assert (sampler.stride_z == 3).mean() > 0.5
+    ref, mag, steady = _reference(m, lat)
+    got = engine.rms_magnitude(h.transpose(1, 0, 2).reshape(-1, 3))
+    err = np.abs(got - mag) / mag
+    assert np.max(err[steady]) <= BOUND
+    assert engine._axis_nodes(9, 3) == [0, 3, 6, 8]
+
+
+def test_reference_columns_take_fewer_heights_only_where_height_is_within_reach():
+    # beside the radials of a ground-mounted vertical every column is a node (strides 1); those far enough from
+    # the radials in height are curl E at every other height (checked), the rest at every height; within the
+    # bound of the reference; asked exactly, such a column is computed at every height
+    m = _model(lambda: antennas.vertical("v", (0, 0), resonant_mhz=7.1), 7.1)
+    lat = engine.Lattice((-1.5, 0.3, 0.2), (0.3, 0.3, 0.2), (12, 12, 9))
+    sampler, iy, ix, _, h = _sampled_everywhere(m, lat, 100.0)
+    reference = (sampler.stride_x == 1) & (sampler.stride_y == 1)
+    on_ref = reference[iy // engine.H_BLOCK, ix // engine.H_BLOCK]
+    sparse = sampler.stride_z[iy, ix] > 1
+    assert (on_ref & sparse).any() and (on_ref & ~sparse).any()  # both kinds present
+    assert not sampler.computed(iy, ix)[on_ref & sparse].any()
+    assert sampler.computed(iy, ix)[on_ref & ~sparse].all()
+    ref, mag, steady = _reference(m, lat)
+    err = np.abs(engine.rms_magnitude(h.transpose(1, 0, 2).reshape(-1, 3)) - mag) / mag
+    assert np.max(err[steady]) <= BOUND
+    k = np.flatnonzero(on_ref & sparse)[:1]
+    sampler.fields(iy[k], ix[k], exact=True)
+    assert sampler.computed(iy[k], ix[k])[0]
+
+
+def test_columns_of_several_rows_share_a_card_and_read_as_points():
+    # columns at equal steps in x and y go to NEC as one card (x fastest, then y, then height): the same fields
+    # as the points one by one, in far fewer cards
+    m = _model(lambda: antennas.dipole("d", (0, 0), 6.0, resonant_mhz=14.2), 14.2)
+    block = [(y, x) for y in range(1, 5) for x in range(3, 8)]  # 4 rows of 5 columns: one card
+    iy, ix = np.array(sorted(block + [(0, 0), (2, 12), (2, 14), (5, 6)])).T
+    cols = engine.Columns(np.column_stack([ix * 0.5 - 3.0, iy * 0.5 + 1.0]), 0.2, 0.36, 4, 0.5)
+    cards = []
+    real = engine._Counter.card
+
+    def card(self, kind, args):
+        cards.append(args)
+        return real(self, kind, args)
+
+    engine._Counter.card = card
+    try:
+        got = engine.near_fields(m, cols, 10.0, h_method="e-only")
+    finally:
+        engine._Counter.card = real
+    one = engine.near_fields(m, cols.points(), 10.0, h_method="e-only")
+    np.testing.assert_allclose(got.e_v_per_m, one.e_v_per_m, rtol=1e-12)
+    runs = engine._runs(cols.xy_m[:, 0], cols.xy_m[:, 1:])
+    assert len(runs) == 7 and len(cards) == 4 and (5, 4) in [(c[1], c[2]) for c in cards]
+
+
+def test_runs_are_the_greedy_runs_of_equal_steps():
+    # each run as long as it goes: entries on one line at equal positive steps (checked against the plain loop)
+    def greedy(along, line):
+        out, k = [], 0
+        while k < len(along):
+            j = k + 1
+            if j < len(along) and (line[j] == line[k]).all() and along[j] > along[k]:
+                gap = along[j] - along[k]
+                while j < len(along) and (line[j] == line[k]).all() and abs(along[j] - along[j - 1] - gap) <= 1e-9:
+                    j += 1
+                out.append((k, j, float(gap)))
+            else:
+                out.append((k, j, 0.0))
+            k = j
+        return out
+
+    rng = np.random.default_rng(1)
+    for _ in range(300):
+        n = int(rng.integers(0, 25))
+        along = rng.choice(np.arange(12) * 0.5, n)
+        if rng.random() < 0.5:
+            along = np.sort(along)
+        line = rng.integers(0, 2, (n, 1)).astype(float)
+        assert engine._runs(along, line) == greedy(along, line)
+
+
+def test_the_window_minimum_is_scipys():
+    # engine._min_filter stands in for scipy.ndimage.minimum_filter (mode "nearest") so that the main process need
+    # not import ndimage; the reference is scipy's own (SciPy reference guide, scipy.ndimage.minimum_filter)
+    from scipy import ndimage
+
+    a = np.random.default_rng(2).random((13, 17))
+    for hy, hx in ((0, 0), (1, 2), (4, 1), (8, 8)):
+        np.testing.assert_array_equal(engine._min_filter(a, hy, hx),
+                                      ndimage.minimum_filter(a, size=(2 * hy + 1, 2 * hx + 1), mode="nearest"))
