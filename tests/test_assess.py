@@ -7,7 +7,7 @@ import warnings
 import numpy as np
 import pytest
 
-from nfmap import assess, engine, site
+from nfmap import adaptive, assess, engine, site
 from nfmap.exposure import averaging, farfield, limits
 
 from .engine.closed_form import dipole_fields
@@ -277,3 +277,26 @@ def test_transmissions_side_by_side_read_as_one_after_another():
         np.testing.assert_allclose(a.ratio, b.ratio, rtol=1e-9)
         np.testing.assert_allclose([x.max_ratio for x in a.areas], [x.max_ratio for x in b.areas], rtol=1e-9)
     np.testing.assert_allclose(one.combined.ratio, two.combined.ratio, rtol=1e-9)
+
+
+def test_the_margin_rings_points_are_the_lattices_own():
+    # the margin search computes its ring in the ground level's sampler (every height, H computed); the lattice of
+    # the margin kept then finds those points done: asked again, nothing new goes to NEC and they count as computed
+    s = _edge_site(0.0)
+    samplers = assess.Samplers()
+    with engine.Workers(1) as workers:
+        margin = assess.covering_margin_m(s, workers, exhaustive=False, samplers=samplers)
+    grown = dataclasses.replace(s, grid=dataclasses.replace(s.grid, margin_m=margin))
+    pl = assess.plan(grown)
+    ground = assess._lattices(grown, pl)[0]
+    t = grown.transmissions[0]
+    sampler = samplers.get(assess.model_for(grown, t.name), ground, t.envelope_power_w, 1)
+    assert samplers.get(assess.model_for(grown, t.name), ground, t.envelope_power_w, 1) is sampler  # one per key
+    stride = adaptive.stride_for(grown.grid.spacing_m)
+    ring = np.zeros((len(pl.y_m), len(pl.x_m)), bool)
+    ring[0, ::stride], ring[-1, ::stride], ring[::stride, 0], ring[::stride, -1] = True, True, True, True
+    iy, ix = np.nonzero(ring)
+    assert sampler.computed(iy, ix).all()
+    before = sampler.node_columns
+    sampler.fields(iy, ix)
+    assert sampler.node_columns == before
