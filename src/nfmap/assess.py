@@ -399,6 +399,11 @@ class Samplers:
         found.progress = progress
         return found
 
+    def release(self, sampler: engine.SampledH) -> None:
+        """Forget a sampler whose lattice is done (its nodes free their memory)."""
+        with self._lock:
+            self._kept = [(k, s) for k, s in self._kept if s is not sampler]
+
     def keep_only(self, lattice: engine.Lattice) -> None:
         """Forget the samplers of other lattices (a margin tried and grown past)."""
         with self._lock:
@@ -711,8 +716,8 @@ def _adaptive_level(site: Site, pl: Plan, lv: Level, lat: engine.Lattice, model:
     occupational = tier == "occupational"
     sol = []
     # over a finite ground H comes from curl E at nodes, interpolated where it is smooth (engine.SampledH)
-    sampler = ((samplers or Samplers()).get(model, lat, t.envelope_power_w, workers, progress)
-               if engine.samples_h(model) else None)
+    samplers = samplers or Samplers()
+    sampler = samplers.get(model, lat, t.envelope_power_w, workers, progress) if engine.samples_h(model) else None
 
     def evaluate(iy: np.ndarray, ix: np.ndarray, exact: bool = False) -> dict[str, np.ndarray]:
         if sampler is not None:
@@ -763,6 +768,8 @@ def _adaptive_level(site: Site, pl: Plan, lv: Level, lat: engine.Lattice, model:
         for k in ("h", "h_pk"):
             got.values[k][~final] *= 1.0 + engine.H_BOUND
     got = adaptive.settle_worst(got, lambda iy, ix: evaluate(iy, ix, exact=True), ratio, labels, final=final)
+    if sampler is not None:
+        samplers.release(sampler)
     return tuple(got.values[k] for k in FIELDS), (sol[0] if sol else None), got.plan_points * len(heights), got.final
 
 
