@@ -290,8 +290,8 @@ def test_the_margin_rings_points_are_the_lattices_own():
     pl = assess.plan(grown)
     ground = assess._lattices(grown, pl)[0]
     t = grown.transmissions[0]
-    sampler = samplers.get(assess.model_for(grown, t.name), ground, t.envelope_power_w, 1)
-    assert samplers.get(assess.model_for(grown, t.name), ground, t.envelope_power_w, 1) is sampler  # one per key
+    sampler = samplers.get(t, assess.model_for(grown, t.name), ground, 1)
+    assert samplers.get(t, assess.model_for(grown, t.name), ground, 1) is sampler  # one per key
     stride = adaptive.stride_for(grown.grid.spacing_m)
     ring = np.zeros((len(pl.y_m), len(pl.x_m)), bool)
     ring[0, ::stride], ring[-1, ::stride], ring[::stride, 0], ring[::stride, -1] = True, True, True, True
@@ -300,3 +300,30 @@ def test_the_margin_rings_points_are_the_lattices_own():
     before = sampler.node_columns
     sampler.fields(iy, ix)
     assert sampler.node_columns == before
+
+
+def test_transmissions_of_one_model_and_power_read_the_same_whatever_the_threads():
+    # two modes on one antenna, one frequency and one envelope power: one model; each transmission keeps its own
+    # sampler (a sampler's answers depend on what it computed before), so with a pool, the two side by side read
+    # as they do one after another
+    from .test_standard_rules import _site
+
+    doc = {
+        "format": 1,
+        "site": {"title": "two modes", "standard": "icnirp-2020"},
+        "ground": {"kind": "average"},
+        "grid": {"spacing_m": 1.0, "margin_m": 0.0, "body_points": 2, "body_from_m": 0.5, "body_to_m": 1.7},
+        "area": [{"name": "yard", "polygon": [[-8, -8], [8, -8], [8, 8], [-8, 8]]}],
+        "antenna": [{"name": "lo", "kind": "dipole", "position_m": [0, -3], "resonant_mhz": 7.1, "height_m": 6,
+                     "heading_deg": 90}],
+        "transmission": [
+            {"name": "cw", "antenna": "lo", "frequency_mhz": 7.1, "power_w": 400.0, "mode": "cw"},
+            {"name": "carrier", "antenna": "lo", "frequency_mhz": 7.1, "power_w": 400.0, "mode": "carrier"},
+        ],
+    }
+    s = _site(doc)
+    assert s.transmissions[0].envelope_power_w == s.transmissions[1].envelope_power_w
+    one, two = assess.assess(s, jobs=1), assess.assess(s, jobs=2)
+    for a, b in zip(one.transmissions, two.transmissions, strict=True):
+        np.testing.assert_allclose(a.ratio, b.ratio, rtol=1e-9)
+        np.testing.assert_allclose([x.max_ratio for x in a.areas], [x.max_ratio for x in b.areas], rtol=1e-9)

@@ -380,21 +380,23 @@ def assess(site: Site, jobs: int = 1, progress: Callable[[int], None] | None = N
 
 
 class Samplers:
-    """The H samplers (:class:`engine.SampledH`) of an assessment, one per model, lattice and power: a point
-    computed for one part of the run (the margin's ring) is not computed again for another (the lattice).
-    Safe to use from several threads."""
+    """The H samplers (:class:`engine.SampledH`) of an assessment, one per transmission, model and lattice: a point
+    computed for one part of a transmission's run (the margin's ring) is not computed again for another (the
+    lattice). Not shared between transmissions, though two may have one model and power: a sampler's answers
+    depend on what it computed before (a point computed in full keeps its own H), so each is used by one
+    transmission in its own order, whatever the threads. Safe to use from several threads."""
 
     def __init__(self):
         self._kept: list[tuple[tuple, engine.SampledH]] = []
         self._lock = threading.Lock()
 
-    def get(self, model: engine.Model, lattice: engine.Lattice, power_w: float, workers,
+    def get(self, transmission, model: engine.Model, lattice: engine.Lattice, workers,
             progress: Callable[[int], None] | None = None) -> engine.SampledH:
-        key = (model, lattice, float(power_w))
+        key = (transmission.name, model, lattice)
         with self._lock:
             found = next((s for k, s in self._kept if k == key), None)
             if found is None:
-                found = engine.SampledH(model, lattice, power_w, workers, progress)
+                found = engine.SampledH(model, lattice, transmission.envelope_power_w, workers, progress)
                 self._kept.append((key, found))
         found.progress = progress
         return found
@@ -407,7 +409,7 @@ class Samplers:
     def keep_only(self, lattice: engine.Lattice) -> None:
         """Forget the samplers of other lattices (a margin tried and grown past)."""
         with self._lock:
-            self._kept = [(k, s) for k, s in self._kept if k[1] == lattice]
+            self._kept = [(k, s) for k, s in self._kept if k[2] == lattice]
 
 
 def _assess_once(site: Site, workers: engine.Workers, progress, exhaustive: bool = False,
@@ -526,7 +528,7 @@ def _ring_ratio(site: Site, workers: engine.Workers, stride: int = 1, samplers: 
         for heading in headings_for(site, t.antenna):
             model = model_for(site, t.name, heading_deg=heading)
             if samplers is not None and engine.samples_h(model):
-                e_c, h_c = samplers.get(model, ground, t.envelope_power_w, workers).fields(iy, ix, exact=True)
+                e_c, h_c = samplers.get(t, model, ground, workers).fields(iy, ix, exact=True)
             else:
                 nf = engine.near_fields(model, pts, t.envelope_power_w, jobs=workers)
                 e_c, h_c = nf.e_v_per_m, nf.h_a_per_m
@@ -717,7 +719,7 @@ def _adaptive_level(site: Site, pl: Plan, lv: Level, lat: engine.Lattice, model:
     sol = []
     # over a finite ground H comes from curl E at nodes, interpolated where it is smooth (engine.SampledH)
     samplers = samplers or Samplers()
-    sampler = samplers.get(model, lat, t.envelope_power_w, workers, progress) if engine.samples_h(model) else None
+    sampler = samplers.get(t, model, lat, workers, progress) if engine.samples_h(model) else None
 
     def evaluate(iy: np.ndarray, ix: np.ndarray, exact: bool = False) -> dict[str, np.ndarray]:
         if sampler is not None:

@@ -1111,6 +1111,7 @@ class SampledH:
         self._h: dict[int, np.ndarray] = {}  # ... -> rms H (nz, 3)
         self._full: set[int] = set()  # nodes whose H was computed at every height
         self.node_columns = 0
+        self._lock = threading.Lock()  # one call at a time: its node tables are not safe to change from two threads
         self.solution: Solution | None = None
 
     def _nodes(self, keys: np.ndarray, reference: np.ndarray, full: np.ndarray, plain=None) -> NearField | None:
@@ -1178,7 +1179,8 @@ class SampledH:
         nx = self.sheet.nx
         iy, ix = np.asarray(iy, int).ravel(), np.asarray(ix, int).ravel()
         order = np.argsort(iy * nx + ix, kind="stable")  # by row, then column: a row's columns share NEC cards
-        e, h = self._fields(iy[order], ix[order], exact)
+        with self._lock:
+            e, h = self._fields(iy[order], ix[order], exact)
         back = np.empty_like(order)
         back[order] = np.arange(len(order))
         return e[back], h[back]
@@ -1186,7 +1188,8 @@ class SampledH:
     def computed(self, iy: np.ndarray, ix: np.ndarray) -> np.ndarray:
         """True where H at plan point (iy, ix) was computed at every height (a node), not interpolated."""
         keys = np.asarray(iy, int) * self.sheet.nx + np.asarray(ix, int)
-        return np.isin(keys, np.fromiter(self._full, int, len(self._full)))
+        full = list(self._full)  # a copy: another thread's call may add to it
+        return np.isin(keys, np.array(full, int))
 
     def _fields(self, iy: np.ndarray, ix: np.ndarray, exact: bool) -> tuple[np.ndarray, np.ndarray]:
         nx, ny, nz = self.sheet.nx, self.sheet.ny, self.sheet.nz
