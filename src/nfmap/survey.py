@@ -218,7 +218,7 @@ def offset_sentence(s: Survey) -> str:
                  "or a conductor near the point that is not in the model (gutter, fence wire, mast guy).")
     elif spread > AGREE_DB[1]:
         text += ("The differences scatter by more than 6 dB: look for readings taken very close to a wire or to metal "
-                 "objects, probes held at other heights than recorded, or a probe sensing the other field (E or H).")
+                 "objects, probes held at other heights than the readings file gives, or a probe sensing the other field (E or H).")
     else:
         text += "The model and the readings agree as well as a simple meter and probe allow."
     return text

@@ -1,10 +1,10 @@
-"""Recording the NEC cards a call sends (what the engine asks PyNEC for, not what it answers)."""
+"""The NEC cards a call sends (what the engine asks PyNEC for, not what it answers)."""
 
 from nfmap import engine
 
 
-def recorded_cards(call):
-    """``call()`` with every near-field card recorded: returns its result and the cards' arguments (PyNEC's
+def cards_sent(call):
+    """``call()`` with every near-field card it sends kept: returns its result and the cards' arguments (PyNEC's
     ne_card / nh_card order: 0, nx, ny, nz, x0, y0, z0, dx, dy, dz)."""
     cards = []
     real = engine._Counter.card

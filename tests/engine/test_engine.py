@@ -11,7 +11,7 @@ from antennas import Structure, Wire
 from nfmap import engine
 
 from . import nec2c
-from .cards import recorded_cards
+from .cards import cards_sent
 from .closed_form import ETA0, dipole_fields
 
 F_MHZ = 14.0
@@ -299,7 +299,7 @@ def test_columns_are_evaluated_from_their_lowest_live_height():
     pts = cols.points()
     masked = engine.mask_points(m, pts).reshape(3, 5)
     assert masked[0, 0] and not masked[0].all() and not masked[2].any()  # the check is not vacuous
-    got, cards = recorded_cards(lambda: engine.near_fields(m, cols, 10.0, h_method="curl"))
+    got, cards = cards_sent(lambda: engine.near_fields(m, cols, 10.0, h_method="curl"))
     assert min(c[3] for c in cards) < 5  # a column started above its masked heights (heights in the card)
     one = engine.near_fields(m, pts, 10.0, h_method="curl")
     np.testing.assert_array_equal(got.masked, one.masked)

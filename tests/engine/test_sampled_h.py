@@ -20,7 +20,7 @@ import antennas
 from nfmap import assess, engine, site
 from nfmap.exposure import limits
 
-from .cards import recorded_cards
+from .cards import cards_sent
 
 BOUND = 0.02
 
@@ -323,7 +323,7 @@ def test_columns_of_several_rows_share_a_card_and_read_as_points():
     block = [(y, x) for y in range(1, 5) for x in range(3, 8)]  # 4 rows of 5 columns: one card
     iy, ix = np.array(sorted(block + [(0, 0), (2, 12), (2, 14), (5, 6)])).T
     cols = engine.Columns(np.column_stack([ix * 0.5 - 3.0, iy * 0.5 + 1.0]), 0.2, 0.36, 4, 0.5)
-    got, cards = recorded_cards(lambda: engine.near_fields(m, cols, 10.0, h_method="e-only"))
+    got, cards = cards_sent(lambda: engine.near_fields(m, cols, 10.0, h_method="e-only"))
     one = engine.near_fields(m, cols.points(), 10.0, h_method="e-only")
     np.testing.assert_allclose(got.e_v_per_m, one.e_v_per_m, rtol=1e-12)
     runs = engine._runs(cols.xy_m[:, 0], cols.xy_m[:, 1:])
