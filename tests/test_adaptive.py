@@ -210,3 +210,16 @@ def test_edges_mark_area_boundaries_and_lines():
     col = int(np.argmin(np.abs(xs - 18.0)))
     rows = (ys > 1) & (ys < 29)
     assert edge[rows, col].all()
+
+
+def test_the_floor_applies_only_below_the_lowest_level():
+    # one 2 x 2 cell, its centre off the corners' interpolation by 0.6 % of the ratio: a miss at 0.2 (above the
+    # lowest level, 0.5 % alone), within at 0.02 (below it, 0.5 % + FLOOR); ratio = value here
+    for level, miss in ((0.2, True), (0.02, False)):
+        v = np.full((3, 3), level)
+        v[1, 1] = level * 1.006
+        done = np.zeros((3, 3), bool)
+        done[[0, 0, 2, 2, 1], [0, 2, 0, 2, 1]] = True
+        got = adaptive._misses({"r": v}, v.copy(), done, [(0, 2, 0, 2)], lambda vals, iy, ix: vals["r"], LEVELS,
+                               np.zeros((3, 3)), adaptive._prefix(np.ones((3, 3), bool)))
+        assert got == [miss], level

@@ -35,9 +35,10 @@ import numpy as np
 
 COARSE_M = 4.0  # the coarse spacing aimed at [m]
 TOLERANCE = 0.005  # interpolated ratio within 0.5 % of the evaluated one at the centres ...
-FLOOR = 1e-3  # ... plus this: 1 % of the lowest level drawn (0.1); a ratio far below it needs no fine spacing
+FLOOR = 1e-3  # ... plus this where both read below the lowest level drawn (0.1): 1 % of it; a ratio far below
+# every level needs no fine spacing (at and above it the share alone)
 DRAWN_TOLERANCE = 0.05  # ... or 5 % in cells where nothing is judged (only drawn: a not-accessible area, a section)
-DRAWN_FLOOR = 0.005  # ... plus this (5 % of the lowest level drawn, 0.1)
+DRAWN_FLOOR = 0.005  # ... plus this, below the lowest level drawn (5 % of it)
 EDGE_FLOOR = 0.05  # area, line and floor edges are refined where the ratio reaches this
 MAX_ROUNDS = 4
 WIRE_REACH_M = 1.0  # plan points this close to a wire (or two spacings, if more) are evaluated in full
@@ -264,7 +265,10 @@ def _misses(values: Values, rmap, done, boxes: list, ratio, levels, trend, judge
     r = rmap[iy, ix]
     judged = np.array([_count(judged_sum, box) > 0 for box in boxes])[owner]
     tol = np.where(judged, TOLERANCE, DRAWN_TOLERANCE)
-    off = np.abs(ratio(guess, iy, ix) - r) > tol * r + np.where(judged, FLOOR, DRAWN_FLOOR)
+    r_guess = ratio(guess, iy, ix)
+    # the floor only where both read below every level drawn or judged: at and above the lowest, the share alone
+    floor = np.where(np.fmax(r, r_guess) < min(levels), np.where(judged, FLOOR, DRAWN_FLOOR), 0.0)
+    off = np.abs(r_guess - r) > tol * r + floor
     bad = np.isnan(r) | off
     n = len(boxes)
     lo = np.full(n, np.inf)

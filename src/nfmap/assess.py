@@ -441,9 +441,9 @@ def _assess_once(site: Site, workers: engine.Workers, progress, exhaustive: bool
             f"Adaptive lattice: {points[0]} of {full} lattice points evaluated with NEC ({100 * points[0] / full:.0f} %): "
             f"every cell crossed by the 0.1, 0.5 or 1 line, within {adaptive.WIRE_REACH_M:g} m of a wire where people "
             "are judged, or on an area edge where the ratio reaches 0.05 in full; elsewhere interpolated from the cell's "
-            f"corners where that reproduces the evaluated centre within {100 * adaptive.TOLERANCE:g} % + "
-            f"{adaptive.FLOOR:g} ({100 * adaptive.DRAWN_TOLERANCE:g} % + {adaptive.DRAWN_FLOOR:g} in not-accessible areas and on "
-            "sections, whose ratios are only drawn). Each area's "
+            f"corners where that reproduces the evaluated centre within {100 * adaptive.TOLERANCE:g} % (+ "
+            f"{adaptive.FLOOR:g} where both read below 0.1; {100 * adaptive.DRAWN_TOLERANCE:g} % + {adaptive.DRAWN_FLOOR:g} in "
+            "not-accessible areas and on sections, whose ratios are only drawn). Each area's "
             f"worst point is a computed one, and so is each group's worst combined point. A hot spot smaller than {adaptive.COARSE_M:g} m across and more than "
             f"{adaptive.WIRE_REACH_M:g} m from every wire could be missed; --exhaustive evaluates every point")
     comb = combined(site, pl, results)

@@ -537,43 +537,39 @@ def exclusion_m(model: Model) -> list[tuple[np.ndarray, np.ndarray, float]]:
     return out
 
 
-MASK_BLOCK = 20_000  # points a block when masking (every wire at once)
+DISTANCE_BLOCK = 20_000  # points a block when measuring distances to every wire at once
+
+
+def _wire_distances2(model: Model, pts: np.ndarray):
+    """Blocks of the squared distance from points (N, 3) to every wire's axis segment: yields (the block's slice,
+    its distances (n, W) [m^2], the wires' exclusion radii (W,) [m])."""
+    wires = exclusion_m(model)
+    a = np.array([w[0] for w in wires]).reshape(-1, 3)
+    ab = np.array([w[1] for w in wires]).reshape(-1, 3) - a
+    radius = np.array([w[2] for w in wires])
+    length2 = np.einsum("wc,wc->w", ab, ab)
+    for k in range(0, len(pts), DISTANCE_BLOCK):
+        rel = pts[k : k + DISTANCE_BLOCK, None, :] - a  # (n, W, 3)
+        t = np.clip(np.einsum("nwc,wc->nw", rel, ab) / length2, 0.0, 1.0)
+        off = rel - t[:, :, None] * ab
+        yield slice(k, k + DISTANCE_BLOCK), np.einsum("nwc,nwc->nw", off, off), radius
 
 
 def mask_points(model: Model, points_m: np.ndarray, extra_m: float = 0.0) -> np.ndarray:
     """True where a point is below ground or inside a wire's exclusion distance (plus ``extra_m``)."""
     pts = np.asarray(points_m, float).reshape(-1, 3)
     masked = pts[:, 2] < 0.0 if model.ground.over_ground else np.zeros(len(pts), bool)
-    wires = exclusion_m(model)
-    a = np.array([w[0] for w in wires]).reshape(-1, 3)
-    ab = np.array([w[1] for w in wires]).reshape(-1, 3) - a
-    reach2 = (np.array([w[2] for w in wires]) + extra_m) ** 2
-    length2 = np.einsum("wc,wc->w", ab, ab)
-    for k in range(0, len(pts), MASK_BLOCK):  # every wire at once, a block of points at a time
-        rel = pts[k : k + MASK_BLOCK, None, :] - a  # (n, W, 3)
-        t = np.clip(np.einsum("nwc,wc->nw", rel, ab) / length2, 0.0, 1.0)
-        off = rel - t[:, :, None] * ab
-        masked[k : k + MASK_BLOCK] |= (np.einsum("nwc,nwc->nw", off, off) < reach2).any(axis=1)
+    for block, d2, radius in _wire_distances2(model, pts):
+        masked[block] |= (d2 < (radius + extra_m) ** 2).any(axis=1)
     return masked
-
-
-def _norms(v: np.ndarray) -> np.ndarray:
-    """Euclidean norm of each row (N, 3)."""
-    return np.sqrt(np.einsum("ij,ij->i", v, v))
-
-
-def _segment_distance_m(pts: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    ab = b - a
-    t = np.clip(((pts - a) @ ab) / (ab @ ab), 0.0, 1.0)
-    return _norms(pts - (a + t[:, None] * ab))
 
 
 def wire_distance_m(model: Model, points_m: np.ndarray) -> np.ndarray:
     """Distance from each point to the nearest wire's axis [m]."""
     pts = np.asarray(points_m, float).reshape(-1, 3)
     out = np.full(len(pts), np.inf)
-    for a, b, _ in exclusion_m(model):
-        out = np.minimum(out, _segment_distance_m(pts, a, b))
+    for block, d2, _ in _wire_distances2(model, pts):
+        out[block] = np.sqrt(d2.min(axis=1, initial=np.inf))
     return out
 
 
